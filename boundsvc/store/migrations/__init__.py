@@ -1,0 +1,1 @@
+"""Alembic migration environment of the boundsvc store (see ``docs/store.md``)."""

@@ -1,0 +1,1 @@
+"""Tests of boundsvc.store (each runs on SQLite and on PostgreSQL)."""
