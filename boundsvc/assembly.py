@@ -1,0 +1,211 @@
+"""From an energy inequality to the certified bound: Young weight, Gronwall, terms, status."""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from typing import cast
+
+import numpy as np
+from numpy.typing import NDArray
+
+from boundsvc.families._base import EnergyInequality, Rigor, SourceInfo, weakest
+from boundsvc.gronwall import LOG_FLOAT_MAX, Propagation, propagate
+from boundsvc.quadrature import TimeGrid
+
+FloatArray = NDArray[np.float64]
+
+_GRID = np.geomspace(1e-4, 1e4, 33)
+_GOLDEN = (math.sqrt(5) - 1) / 2
+
+
+@dataclass
+class BoundResult:
+    """The numbers of a certificate and the terms that make them up."""
+
+    status: str
+    l2_space_time: float | None
+    l2_final_time: float | None
+    log10_l2_space_time: float | None
+    log10_l2_final_time: float | None
+    profile_t: list[float]
+    profile_bound: list[float | None]
+    vacuous_from: float | None
+    ended_by: str | None
+    terms: list[dict[str, object]]
+    young_weight: dict[str, float | None]
+    warnings: list[str] = field(default_factory=list)
+    rigor: str = "heuristic"
+
+
+def _run(ineq: EnergyInequality, grid: TimeGrid, lam: float) -> Propagation:
+    forcing = dict(ineq.forcing)
+    nonneg = list(ineq.nonnegative)
+    rate = ineq.base_rate
+    if ineq.residual is not None:
+        forcing = {"interior": ineq.residual / lam, **forcing}
+        nonneg.append("interior")
+        rate = rate.shifted(lam)
+    return propagate(grid, rate, ineq.initial, forcing, nonnegative=nonneg)
+
+
+def _refine(
+    ineq: EnergyInequality, grid: TimeGrid, best: float, key: str, cache: dict[float, Propagation]
+) -> float:
+    """Golden-section search in log(lambda) around ``best`` for the final or space-time bound."""
+
+    def objective(log_lam: float) -> float:
+        lam = math.exp(log_lam)
+        if lam not in cache:
+            cache[lam] = _run(ineq, grid, lam)
+        prop = cache[lam]
+        value = prop.log_y[-1] if key == "final" else prop.log_space_time
+        return float(value) if math.isfinite(value) or value == -math.inf else math.inf
+
+    lo, hi = math.log(best) - math.log(10) / 2, math.log(best) + math.log(10) / 2
+    a = hi - _GOLDEN * (hi - lo)
+    b = lo + _GOLDEN * (hi - lo)
+    fa, fb = objective(a), objective(b)
+    for _ in range(14):
+        if fa < fb:
+            hi, b, fb = b, a, fa
+            a = hi - _GOLDEN * (hi - lo)
+            fa = objective(a)
+        else:
+            lo, a, fa = a, b, fb
+            b = lo + _GOLDEN * (hi - lo)
+            fb = objective(b)
+    return math.exp(a if fa < fb else b)
+
+
+def _finite_exp_half(log_value: float) -> float | None:
+    if math.isnan(log_value) or log_value == math.inf or 0.5 * log_value > LOG_FLOAT_MAX:
+        return None
+    return math.exp(0.5 * log_value) if log_value > -math.inf else 0.0
+
+
+def assemble_bound(ineq: EnergyInequality, grid: TimeGrid) -> BoundResult:
+    """Apply Gronwall with the best Young weight to the energy inequality on the time grid.
+
+    Every Young weight ``lambda > 0`` gives a valid bound at every time, so the bound reported
+    at each output time is the minimum over the weights tried there (a finite search is only
+    about tightness, never about validity).
+    """
+    length = grid.t_end - grid.t0
+    cache: dict[float, Propagation] = {}
+    if ineq.residual is None:
+        lambdas = [1.0]
+    elif not np.any(ineq.residual > 0):
+        lambdas = [1e-12 / length]
+    else:
+        lambdas = list(_GRID / length)
+    for lam in lambdas:
+        cache[lam] = _run(ineq, grid, lam)
+
+    def best_by(key: str) -> float:
+        def score(lam: float) -> float:
+            prop = cache[lam]
+            v = prop.log_y[-1] if key == "final" else prop.log_space_time
+            return float(v) if not math.isnan(v) else math.inf
+
+        return min(cache, key=score)
+
+    lam_final, lam_st = best_by("final"), best_by("space_time")
+    if len(lambdas) > 1:
+        if math.isfinite(cache[lam_final].log_y[-1]):
+            lam_final = _refine(ineq, grid, lam_final, "final", cache)
+        if math.isfinite(cache[lam_st].log_space_time):
+            lam_st = _refine(ineq, grid, lam_st, "space_time", cache)
+    final_prop, st_prop = cache[lam_final], cache[lam_st]
+    times = final_prop.times
+    stacked = np.stack([p.log_y for p in cache.values()])
+    with np.errstate(invalid="ignore"):
+        profile_log = np.where(
+            np.all(np.isnan(stacked), axis=0),
+            np.nan,
+            np.nanmin(np.where(np.isnan(stacked), np.inf, stacked), axis=0),
+        )
+    profile_log = np.where(np.isinf(profile_log) & (profile_log > 0), np.nan, profile_log)
+    ended = np.flatnonzero(np.isnan(profile_log))
+    vacuous_from: float | None = None
+    ended_by: str | None = None
+    if ended.size:
+        # every weight ended: the bound ends where the last of them ended
+        latest = max(cache.values(), key=lambda p: p.ended_at if p.ended_at is not None else -1)
+        vacuous_from = latest.ended_at if latest.ended_at is not None else float(times[ended[0]])
+        ended_by = latest.ended_by
+
+    log_final = float(final_prop.log_y[-1])
+    log_st = float(st_prop.log_space_time)
+    l2_final = _finite_exp_half(log_final)
+    l2_st = _finite_exp_half(log_st)
+    log10 = math.log(10)
+    terms = _terms(ineq, final_prop, st_prop, log_final, log_st)
+    rigor = weakest(ineq.rate_rigor, *[cast(Rigor, t["rigor"]) for t in terms])
+    warnings: list[str] = []
+    status = "valid"
+    if vacuous_from is not None or l2_final is None or l2_st is None:
+        status = "vacuous"
+        reason = {
+            "rate-pole": "the growth rate diverges (a regularity bound has a pole)",
+            "overflow": "the bound exceeds the float64 range",
+            "rate-too-stiff": "the growth rate could not be integrated reliably",
+        }.get(ended_by or "overflow", "the bound is not finite")
+        last = float(times[ended[0] - 1]) if ended.size and ended[0] > 0 else grid.t0
+        warnings.append(
+            f"vacuous: {reason}; the bound is finite up to t = {last:.6g}"
+            + (f" and not beyond t = {vacuous_from:.6g}" if vacuous_from else "")
+        )
+    profile = [_finite_exp_half(float(v)) for v in profile_log]
+    return BoundResult(
+        status=status,
+        l2_space_time=l2_st,
+        l2_final_time=l2_final,
+        log10_l2_space_time=(0.5 * log_st / log10) if math.isfinite(log_st) else None,
+        log10_l2_final_time=(0.5 * log_final / log10) if math.isfinite(log_final) else None,
+        profile_t=[float(t) for t in times],
+        profile_bound=profile,
+        vacuous_from=vacuous_from,
+        ended_by=ended_by,
+        terms=terms,
+        young_weight={
+            "final_time": lam_final if ineq.residual is not None else None,
+            "space_time": lam_st if ineq.residual is not None else None,
+        },
+        warnings=warnings,
+        rigor=rigor,
+    )
+
+
+def _terms(
+    ineq: EnergyInequality, final: Propagation, st: Propagation, log_final: float, log_st: float
+) -> list[dict[str, object]]:
+    infos: list[tuple[str, SourceInfo]] = [("initial", ineq.initial_info)]
+    if ineq.residual is not None and ineq.residual_info is not None:
+        infos.append(("interior", ineq.residual_info))
+    infos.extend(ineq.forcing_info.items())
+    out: list[dict[str, object]] = []
+    for key, info in infos:
+        share_f = float(final.shares[key][-1]) if key in final.shares else math.nan
+        share_s = st.space_time_shares.get(key, math.nan)
+        value: float | None = None
+        if math.isfinite(log_final) and math.isfinite(share_f) and log_final < LOG_FLOAT_MAX:
+            value = share_f * math.exp(log_final)
+        elif log_final == -math.inf:
+            value = 0.0
+        out.append(
+            {
+                "name": info.name,
+                "symbol": info.symbol,
+                "value": value,
+                "formula": info.formula,
+                "rigor": info.rigor,
+                "share_final_time": share_f if math.isfinite(share_f) else None,
+                "share_space_time": share_s if math.isfinite(share_s) else None,
+                "detail": (info.detail + "; value = contribution to the squared final-time bound")
+                if info.detail
+                else "value = contribution to the squared final-time bound",
+            }
+        )
+    del log_st
+    return out

@@ -1,0 +1,60 @@
+"""The catalogue of stability theorems and the classifier that picks one for a problem."""
+
+from __future__ import annotations
+
+from api_schemas import ProblemSpec
+from boundsvc.errors import ProblemNotCovered
+from boundsvc.families._analysis import AnalysedProblem, analyse, exact, problem_sha256
+from boundsvc.families._base import (
+    CertifyInputs,
+    Classified,
+    ConstantInfo,
+    EnergyInequality,
+    Family,
+    Requirement,
+    SourceInfo,
+    weakest,
+)
+from boundsvc.families.advection_diffusion import AdvectionDiffusionFamily
+from boundsvc.families.conservation_law import ConservationLawFamily
+
+CATALOGUE: tuple[Family, ...] = (AdvectionDiffusionFamily(), ConservationLawFamily())
+
+
+def family_by_id(family_id: str) -> Family | None:
+    """The family with this id, if the catalogue has it."""
+    return next((f for f in CATALOGUE if f.id == family_id), None)
+
+
+def classify(problem: ProblemSpec | AnalysedProblem) -> Classified:
+    """Parse and classify a problem; raise ProblemNotCovered with every family's reason."""
+    analysed = problem if isinstance(problem, AnalysedProblem) else analyse(problem)
+    reasons: dict[str, str] = {}
+    for family in CATALOGUE:
+        result = family.recognise(analysed)
+        if isinstance(result, Classified):
+            return result
+        reasons[family.id] = result
+    detail = "no family of the catalogue covers this equation: " + "; ".join(
+        f"{fid}: {why}" for fid, why in reasons.items()
+    )
+    raise ProblemNotCovered(detail, reasons)
+
+
+__all__ = [
+    "CATALOGUE",
+    "AnalysedProblem",
+    "CertifyInputs",
+    "Classified",
+    "ConstantInfo",
+    "EnergyInequality",
+    "Family",
+    "Requirement",
+    "SourceInfo",
+    "analyse",
+    "classify",
+    "exact",
+    "family_by_id",
+    "problem_sha256",
+    "weakest",
+]

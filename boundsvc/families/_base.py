@@ -1,0 +1,178 @@
+"""What every family provides, and the energy inequality it hands to the Gronwall assembly."""
+
+from __future__ import annotations
+
+from abc import ABC, abstractmethod
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass, field
+from typing import Literal
+
+import numpy as np
+from numpy.typing import NDArray
+
+from boundsvc.families._analysis import AnalysedProblem
+from boundsvc.gronwall import Rate
+from boundsvc.quadrature import Plan
+from boundsvc.regularity import RegularityValue
+
+FloatArray = NDArray[np.float64]
+Rigor = Literal["proven", "assumed", "statistical", "heuristic"]
+
+_RIGOR_ORDER: dict[str, int] = {"proven": 0, "assumed": 1, "statistical": 2, "heuristic": 3}
+
+
+def weakest(*rigors: Rigor) -> Rigor:
+    """The weakest of several rigor labels (a term is as strong as its weakest ingredient)."""
+    return max(rigors, key=lambda r: _RIGOR_ORDER[r]) if rigors else "proven"
+
+
+@dataclass(frozen=True)
+class Requirement:
+    """A regularity input the theorem needs; any key in ``any_of`` satisfies it."""
+
+    any_of: tuple[str, ...]
+    purpose: str
+    quantity: str
+
+
+@dataclass(frozen=True)
+class ConstantInfo:
+    """A stability constant as shown to users (text, LaTeX, derivation, reference)."""
+
+    name: str
+    symbol: str
+    expression: str
+    latex: str
+    derivation: tuple[str, ...]
+    reference: str
+    value: float | None = None
+    rigor: Rigor | None = None
+
+    def with_value(self, value: float | None, rigor: Rigor | None = None) -> ConstantInfo:
+        return ConstantInfo(
+            self.name,
+            self.symbol,
+            self.expression,
+            self.latex,
+            self.derivation,
+            self.reference,
+            value,
+            rigor or self.rigor,
+        )
+
+    def as_json(self) -> dict[str, object]:
+        return {
+            "name": self.name,
+            "symbol": self.symbol,
+            "expression": self.expression,
+            "latex": self.latex,
+            "value": self.value,
+            "derivation": list(self.derivation),
+            "rigor": self.rigor,
+            "reference": self.reference,
+        }
+
+
+@dataclass(frozen=True)
+class SourceInfo:
+    """Description of one forcing source of the energy inequality (becomes a term)."""
+
+    name: str
+    symbol: str
+    formula: str
+    rigor: Rigor
+    detail: str = ""
+
+
+@dataclass
+class EnergyInequality:
+    """``Y' <= (lambda + base_rate(t)) Y + residual(t)/lambda + sum_src forcing_src(t)``.
+
+    ``Y(t) = ||u_model(., t) - u(., t)||^2_{L2(space)}`` (for an ODE system the squared
+    Euclidean norm), ``Y(t0) <= initial``; ``lambda > 0`` is the free Young weight of
+    ``2 (R, w) <= lambda ||w||^2 + ||R||^2 / lambda`` (chosen by the assembly); when
+    ``young`` is False the inequality has no Young weight (``residual`` is then unused).
+    """
+
+    base_rate: Rate
+    initial: float
+    initial_info: SourceInfo
+    residual: FloatArray | None
+    residual_info: SourceInfo | None
+    forcing: dict[str, FloatArray] = field(default_factory=dict)
+    forcing_info: dict[str, SourceInfo] = field(default_factory=dict)
+    nonnegative: tuple[str, ...] = ()
+    constants: list[ConstantInfo] = field(default_factory=list)
+    warnings: list[str] = field(default_factory=list)
+    failed_hypotheses: list[str] = field(default_factory=list)
+    rate_rigor: Rigor = "proven"
+    inputs: dict[str, float] = field(default_factory=dict)
+
+
+@dataclass(frozen=True)
+class CertifyInputs:
+    """What a family needs to write down its energy inequality for one certificate."""
+
+    plan: Plan
+    residuals: Mapping[str, FloatArray]
+    regularity: Mapping[str, RegularityValue]
+
+
+class Classified(ABC):
+    """A problem recognised by a family, with its coefficients extracted."""
+
+    family: Family
+    problem: AnalysedProblem
+
+    @abstractmethod
+    def components(self) -> list[str]:
+        """Residual components the theorem needs (plan component names, in wire order)."""
+
+    @abstractmethod
+    def requirements(self) -> list[Requirement]:
+        """Regularity inputs that are always needed."""
+
+    @abstractmethod
+    def optional_keys(self) -> list[str]:
+        """Regularity keys that are accepted in addition (tighten, or needed conditionally)."""
+
+    @abstractmethod
+    def constants(self) -> list[ConstantInfo]:
+        """The stability constants in the problem's symbols (no regularity values needed)."""
+
+    @abstractmethod
+    def description(self) -> dict[str, object]:
+        """The classification: the identified coefficients as text."""
+
+    @abstractmethod
+    def energy_inequality(self, inputs: CertifyInputs) -> EnergyInequality:
+        """The energy inequality for given residuals and regularity values."""
+
+    def hypotheses(self) -> list[str]:
+        return list(self.family.hypotheses)
+
+    def allowed_keys(self) -> list[str]:
+        keys: list[str] = []
+        for req in self.requirements():
+            keys.extend(k for k in req.any_of if k not in keys)
+        keys.extend(k for k in self.optional_keys() if k not in keys)
+        return keys
+
+
+class Family(ABC):
+    """A stability theorem of the catalogue."""
+
+    id: str
+    title: str
+    equation_form: str
+    hypotheses: Sequence[str]
+    bounded_quantities: Sequence[str]
+    reference: str
+    theory_document: str
+    typical_regularity: Sequence[str] = ()
+    typical_optional: Sequence[str] = ()
+    typical_components: Sequence[str] = ()
+
+    @abstractmethod
+    def recognise(self, problem: AnalysedProblem) -> Classified | str:
+        """The classified problem, or a sentence saying why this family does not cover it."""
