@@ -1,0 +1,139 @@
+"""Certificates: the stored result of one certification."""
+
+from __future__ import annotations
+
+from typing import Any, Literal
+
+from pydantic import BaseModel, ConfigDict, Field, model_validator
+
+from api_schemas._common import ModelInfo
+from api_schemas._plan import InlinePlanComponent
+from api_schemas._problem import ProblemSpec
+from api_schemas._residuals import ResidualValues
+
+Rigor = Literal["proven", "assumed", "statistical", "heuristic"]
+Status = Literal["valid", "vacuous", "invalid-hypotheses"]
+
+
+class CertificateRequest(BaseModel):
+    """Body of ``POST /v1/certificates``."""
+
+    model_config = ConfigDict(extra="forbid")
+
+    problem: ProblemSpec | None = None
+    problem_id: str | None = None
+    regularity: dict[str, float | str] = Field(default_factory=dict)
+    plan_id: str | None = None
+    plan: dict[str, InlinePlanComponent] | None = Field(
+        default=None, description="Inline points and weights per component instead of plan_id."
+    )
+    residuals: dict[str, ResidualValues]
+    model: ModelInfo | None = None
+
+    @model_validator(mode="after")
+    def _exactly_one(self) -> CertificateRequest:
+        if (self.problem is None) == (self.problem_id is None):
+            raise ValueError("give exactly one of 'problem' and 'problem_id'")
+        if (self.plan_id is None) == (self.plan is None):
+            raise ValueError("give exactly one of 'plan_id' and 'plan'")
+        return self
+
+
+class Bound(BaseModel):
+    """The bounded norms of the error; ``None`` where the bound is not finite (vacuous)."""
+
+    l2_space_time: float | None = None
+    l2_final_time: float | None = None
+    l2_space: float | None = None
+    log10_l2_space_time: float | None = None
+    log10_l2_final_time: float | None = None
+
+
+class TimeProfile(BaseModel):
+    """``l2_error_bound[k]`` bounds the spatial L2 norm of the error at ``t[k]``."""
+
+    t: list[float]
+    l2_error_bound: list[float | None]
+
+
+class Term(BaseModel):
+    """One summand of the bound (its contribution to the squared final-time bound)."""
+
+    name: str
+    symbol: str
+    value: float | None
+    formula: str
+    rigor: Rigor
+    share_final_time: float | None = None
+    share_space_time: float | None = None
+    detail: str | None = None
+
+
+class Constant(BaseModel):
+    """A stability constant: expression, value, and how it was derived."""
+
+    name: str
+    symbol: str
+    expression: str
+    latex: str | None = None
+    value: float | None
+    derivation: list[str]
+    rigor: Rigor | None = None
+    reference: str | None = None
+
+
+class Provenance(BaseModel):
+    """Where the certificate came from."""
+
+    model_config = ConfigDict(extra="allow")
+
+    service_version: str
+    libraries: dict[str, str]
+    problem_sha256: str
+    inputs_sha256: str
+    plan_id: str | None
+    theorem: str
+    created_at: str
+    arrays_sha256: dict[str, str] = Field(default_factory=dict)
+
+
+class Certificate(BaseModel):
+    """A stored certificate (immutable)."""
+
+    model_config = ConfigDict(extra="allow")
+
+    id: str
+    status: Status
+    family: str
+    problem_id: str | None = None
+    bound: Bound
+    time_profile: TimeProfile | None
+    terms: list[Term]
+    constants: list[Constant]
+    warnings: list[str]
+    hypotheses: list[str] = Field(default_factory=list)
+    rigor: Rigor | None = None
+    vacuous_from: float | None = None
+    model: ModelInfo | None = None
+    provenance: Provenance
+    regularity: dict[str, Any] = Field(default_factory=dict)
+
+
+class CertificateSummary(BaseModel):
+    """One row of the certificate list."""
+
+    id: str
+    status: Status
+    family: str
+    created_at: str
+    model_name: str | None = None
+    model_version: str | None = None
+    project: str | None = None
+    bound: Bound | None = None
+
+
+class CertificatePage(BaseModel):
+    """Body of ``GET /v1/certificates``."""
+
+    items: list[CertificateSummary]
+    next_cursor: str | None = None

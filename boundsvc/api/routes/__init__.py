@@ -1,0 +1,1 @@
+"""HTTP routes (thin: validate, call the core, map the result)."""

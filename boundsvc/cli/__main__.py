@@ -1,0 +1,7 @@
+"""``python -m boundsvc.cli``."""
+
+import sys
+
+from boundsvc.cli import main
+
+sys.exit(main())
