@@ -67,7 +67,9 @@ def get_certificate(certificate_id: str, store: Store = Depends(get_store),
 @router.get("/certificates", response_model=CertificatePage)
 def list_certificates(
     model: str | None = Query(default=None, description="model name"),
-    model_version: str | None = Query(default=None),
+    model_name: str | None = Query(default=None, description="alias of model"),
+    version: str | None = Query(default=None, description="model version"),
+    model_version: str | None = Query(default=None, description="alias of version"),
     family: str | None = Query(default=None),
     status: str | None = Query(default=None),
     created_after: dt.datetime | None = Query(default=None),
@@ -83,7 +85,8 @@ def list_certificates(
             raise BoundsvcError("invalid_query", f"{name} needs a timezone (e.g. ...Z)", name)
     try:
         page = store.list_certificates(
-            caller.project, model_name=model, model_version=model_version, family=family,
+            caller.project, model_name=model or model_name,
+            model_version=version or model_version, family=family,
             status=status, created_after=created_after, created_before=created_before,
             limit=limit, cursor=cursor)
     except InvalidCursor as exc:
