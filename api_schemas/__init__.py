@@ -12,6 +12,7 @@ from api_schemas._certificate import (
     CertificateSummary,
     Constant,
     Provenance,
+    QuadratureOptions,
     Term,
     TimeProfile,
 )
@@ -49,6 +50,7 @@ __all__ = [
     "ProblemResponse",
     "ProblemSpec",
     "Provenance",
+    "QuadratureOptions",
     "RegularityRequirement",
     "ResidualValues",
     "Term",

@@ -15,6 +15,24 @@ Rigor = Literal["proven", "assumed", "statistical", "heuristic"]
 Status = Literal["valid", "vacuous", "invalid-hypotheses"]
 
 
+class QuadratureOptions(BaseModel):
+    """How residual integrals are stated (confidence of statistical limits, error terms)."""
+
+    model_config = ConfigDict(extra="forbid")
+
+    confidence: float = Field(
+        default=0.95, gt=0.5, lt=1.0, description="joint confidence of all statistical statements"
+    )
+    derivative_bounds: dict[str, dict[str, float]] = Field(
+        default_factory=dict,
+        description="component -> axis -> bound on |d^{2n} (r^2) / d axis^{2n}| "
+        "(Gauss-Legendre error term)",
+    )
+    residual_bounds: dict[str, float] = Field(
+        default_factory=dict, description="component -> bound on |r| (Hoeffding limit)"
+    )
+
+
 class CertificateRequest(BaseModel):
     """Body of ``POST /v1/certificates``."""
 
@@ -27,8 +45,9 @@ class CertificateRequest(BaseModel):
     plan: dict[str, InlinePlanComponent] | None = Field(
         default=None, description="Inline points and weights per component instead of plan_id."
     )
-    residuals: dict[str, ResidualValues]
+    residuals: dict[str, ResidualValues] = Field(default_factory=dict)
     model: ModelInfo | None = None
+    quadrature: QuadratureOptions | None = None
 
     @model_validator(mode="after")
     def _exactly_one(self) -> CertificateRequest:

@@ -8,11 +8,21 @@ from pydantic import BaseModel, ConfigDict, Field, model_validator
 
 from api_schemas._problem import ProblemSpec
 
-RuleName = Literal["gauss-legendre"]
+RuleName = Literal["gauss-legendre", "sobol", "monte-carlo", "grid", "custom"]
+
+
+class InlinePlanComponent(BaseModel):
+    """Client-chosen points and weights for one component (no plan id)."""
+
+    model_config = ConfigDict(extra="forbid")
+
+    axes: list[str]
+    points: list[list[float]]
+    weights: list[float]
 
 
 class PlanRequest(BaseModel):
-    """Body of ``POST /v1/plans``."""
+    """Body of ``POST /v1/plans`` (every plan is reproducible from its request)."""
 
     model_config = ConfigDict(extra="forbid")
 
@@ -21,16 +31,42 @@ class PlanRequest(BaseModel):
     rule: RuleName = "gauss-legendre"
     points: dict[str, int] = Field(
         default_factory=dict,
-        description="Gauss-Legendre nodes per panel for each axis ('t', 'x', ...).",
+        description="Nodes per panel and axis ('t', 'x', ...): Gauss-Legendre nodes, grid nodes; "
+        "for sobol/monte-carlo only 't' (Gauss-Legendre time nodes).",
     )
     panels: dict[str, int] = Field(
         default_factory=dict, description="Composite panels per axis (default 1)."
+    )
+    n: int | None = Field(
+        default=None,
+        ge=2,
+        le=4_000_000,
+        description="sobol/monte-carlo: interior points per replicate (n / time nodes per slice)",
+    )
+    replicates: int = Field(default=8, ge=1, le=64, description="sobol: independent scramblings")
+    seed: int | None = Field(
+        default=None,
+        ge=0,
+        le=2**63 - 1,
+        description="random seed (default: derived from the request)",
+    )
+    weights: Literal["trapezoid", "simpson"] = Field(
+        default="trapezoid", description="grid: the composite rule of the uniform grid"
+    )
+    components: dict[str, InlinePlanComponent] | None = Field(
+        default=None, description="custom: points and weights per component"
     )
 
     @model_validator(mode="after")
     def _one_problem(self) -> PlanRequest:
         if (self.problem is None) == (self.problem_id is None):
             raise ValueError("give exactly one of 'problem' and 'problem_id'")
+        if self.rule in ("sobol", "monte-carlo") and self.n is None:
+            raise ValueError(f"the {self.rule} rule needs 'n' (points per replicate)")
+        if self.rule == "custom" and not self.components:
+            raise ValueError("the custom rule needs 'components' with points and weights")
+        if self.rule != "custom" and self.components is not None:
+            raise ValueError("'components' is only used by the custom rule")
         return self
 
 
@@ -56,13 +92,5 @@ class PlanResponse(BaseModel):
     )
     time_nodes: list[float] = Field(default_factory=list)
     warnings: list[str] = Field(default_factory=list)
-
-
-class InlinePlanComponent(BaseModel):
-    """Client-chosen points and weights for one component (no plan id)."""
-
-    model_config = ConfigDict(extra="forbid")
-
-    axes: list[str]
-    points: list[list[float]]
-    weights: list[float]
+    seed: int | None = None
+    replicates: int | None = None

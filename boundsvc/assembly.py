@@ -49,6 +49,11 @@ def _run(ineq: EnergyInequality, grid: TimeGrid, lam: float) -> Propagation:
     return propagate(grid, rate, ineq.initial, forcing, nonnegative=nonneg)
 
 
+def final_log_at(ineq: EnergyInequality, grid: TimeGrid, lam: float) -> float:
+    """log of the final-time bound on Y for one Young weight (no search)."""
+    return float(_run(ineq, grid, lam).log_y[-1])
+
+
 def _refine(
     ineq: EnergyInequality, grid: TimeGrid, best: float, key: str, cache: dict[float, Propagation]
 ) -> float:
@@ -118,7 +123,10 @@ def assemble_bound(ineq: EnergyInequality, grid: TimeGrid) -> BoundResult:
             lam_st = _refine(ineq, grid, lam_st, "space_time", cache)
     final_prop, st_prop = cache[lam_final], cache[lam_st]
     times = final_prop.times
-    stacked = np.stack([p.log_y for p in cache.values()])
+    # everything below works with the log of the *squared* bound; in the norm mode
+    # (``squared = False``) Y is the norm itself, so its log is doubled first
+    factor = 1.0 if ineq.squared else 2.0
+    stacked = factor * np.stack([p.log_y for p in cache.values()])
     with np.errstate(invalid="ignore"):
         profile_log = np.where(
             np.all(np.isnan(stacked), axis=0),
@@ -135,12 +143,12 @@ def assemble_bound(ineq: EnergyInequality, grid: TimeGrid) -> BoundResult:
         vacuous_from = latest.ended_at if latest.ended_at is not None else float(times[ended[0]])
         ended_by = latest.ended_by
 
-    log_final = float(final_prop.log_y[-1])
-    log_st = float(st_prop.log_space_time)
+    log_final = factor * float(final_prop.log_y[-1])
+    log_st = float(st_prop.log_space_time) if ineq.squared else _log_norm_space_time(st_prop, grid)
     l2_final = _finite_exp_half(log_final)
     l2_st = _finite_exp_half(log_st)
     log10 = math.log(10)
-    terms = _terms(ineq, final_prop, st_prop, log_final, log_st)
+    terms = _terms(ineq, final_prop, st_prop, log_final, log_st, grid)
     rigor = weakest(ineq.rate_rigor, *[cast(Rigor, t["rigor"]) for t in terms])
     warnings: list[str] = []
     status = "valid"
@@ -177,20 +185,58 @@ def assemble_bound(ineq: EnergyInequality, grid: TimeGrid) -> BoundResult:
     )
 
 
+def _log_norm_space_time(prop: Propagation, grid: TimeGrid) -> float:
+    """Norm mode: log of ``int Y^2 dt``, by the plan's Gauss-Legendre time weights applied to
+    the square of the norm bound ``Y`` at the time nodes."""
+    if prop.ended_by is not None:
+        return math.inf
+    with np.errstate(divide="ignore"):
+        terms = np.log(grid.weights) + 2.0 * prop.log_y[np.flatnonzero(prop.node_mask)]
+    finite = terms[np.isfinite(terms)]
+    if finite.size == 0:
+        return -math.inf
+    top = float(np.max(finite))
+    return top + math.log(float(np.sum(np.exp(finite - top))))
+
+
+def _norm_space_time_shares(prop: Propagation, grid: TimeGrid) -> dict[str, float]:
+    """Norm mode: each source's share of ``int Y^2`` (attributed as ``Y^2 * share``)."""
+    node = np.flatnonzero(prop.node_mask)
+    log_sq = 2.0 * prop.log_y[node]
+    if prop.ended_by is not None or not np.any(np.isfinite(log_sq)):
+        return {}
+    with np.errstate(divide="ignore", invalid="ignore"):
+        weights = grid.weights * np.exp(log_sq - np.max(log_sq[np.isfinite(log_sq)]))
+    weights = np.where(np.isfinite(weights), weights, 0.0)
+    total = float(np.sum(weights))
+    if total <= 0:
+        return {}
+    return {k: float(np.sum(weights * v[node]) / total) for k, v in prop.shares.items()}
+
+
 def _terms(
-    ineq: EnergyInequality, final: Propagation, st: Propagation, log_final: float, log_st: float
+    ineq: EnergyInequality,
+    final: Propagation,
+    st: Propagation,
+    log_final: float,
+    log_st: float,
+    grid: TimeGrid,
 ) -> list[dict[str, object]]:
     infos: list[tuple[str, SourceInfo]] = [("initial", ineq.initial_info)]
     if ineq.residual is not None and ineq.residual_info is not None:
         infos.append(("interior", ineq.residual_info))
     infos.extend(ineq.forcing_info.items())
     out: list[dict[str, object]] = []
+    # log of the final-time bound in the units the shares refer to (squared, or the norm)
+    log_units = log_final if ineq.squared else 0.5 * log_final
+    st_shares = st.space_time_shares if ineq.squared else _norm_space_time_shares(st, grid)
+    what = "squared final-time bound" if ineq.squared else "final-time bound (norm)"
     for key, info in infos:
         share_f = float(final.shares[key][-1]) if key in final.shares else math.nan
-        share_s = st.space_time_shares.get(key, math.nan)
+        share_s = st_shares.get(key, math.nan)
         value: float | None = None
-        if math.isfinite(log_final) and math.isfinite(share_f) and log_final < LOG_FLOAT_MAX:
-            value = share_f * math.exp(log_final)
+        if math.isfinite(log_units) and math.isfinite(share_f) and log_units < LOG_FLOAT_MAX:
+            value = share_f * math.exp(log_units)
         elif log_final == -math.inf:
             value = 0.0
         out.append(
@@ -202,9 +248,9 @@ def _terms(
                 "rigor": info.rigor,
                 "share_final_time": share_f if math.isfinite(share_f) else None,
                 "share_space_time": share_s if math.isfinite(share_s) else None,
-                "detail": (info.detail + "; value = contribution to the squared final-time bound")
+                "detail": (info.detail + f"; value = contribution to the {what}")
                 if info.detail
-                else "value = contribution to the squared final-time bound",
+                else f"value = contribution to the {what}",
             }
         )
     del log_st

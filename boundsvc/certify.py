@@ -17,12 +17,31 @@ from dataclasses import dataclass
 from importlib import metadata
 from typing import Any, cast
 
-from api_schemas import ModelInfo, PlanRequest, ProblemSpec
+from api_schemas import ModelInfo, PlanRequest, ProblemSpec, QuadratureOptions
 from boundsvc import __version__
-from boundsvc.assembly import assemble_bound
+from boundsvc.assembly import BoundResult, assemble_bound, final_log_at
 from boundsvc.errors import PlanInvalid, RegularityError
-from boundsvc.families import CertifyInputs, Classified, classify, problem_sha256
-from boundsvc.quadrature import Plan, PlanError, build_gauss_plan, plan_id_for
+from boundsvc.families import (
+    CertifyInputs,
+    Classified,
+    EnergyInequality,
+    classify,
+    problem_sha256,
+    weakest,
+)
+from boundsvc.families._base import Rigor
+from boundsvc.quadrature import (
+    Plan,
+    PlanError,
+    QuadratureLog,
+    build_custom_plan,
+    build_gauss_plan,
+    build_sampled_plan,
+    plan_id_for,
+    quadrature_log,
+    simpson_rule,
+    trapezoid_rule,
+)
 from boundsvc.regularity import RegularityValue, check_keys, parse_regularity
 from boundsvc.residuals import validate_residuals
 
@@ -125,13 +144,33 @@ def parse_all_regularity(
 
 
 def plan_spec(request: PlanRequest, problem_id: str) -> dict[str, Any]:
-    """The canonical request a plan is rebuilt from (its id is the hash of this)."""
-    return {
+    """The canonical request a plan is rebuilt from (its id is the hash of this).
+
+    Random rules get a seed derived from the request when none is given, so that the same
+    request always gives the same plan (and the seed is recorded in the plan).
+    """
+    spec: dict[str, Any] = {
         "problem_id": problem_id,
         "rule": request.rule,
         "points": dict(sorted(request.points.items())),
         "panels": dict(sorted(request.panels.items())),
     }
+    if request.rule in ("sobol", "monte-carlo"):
+        spec["n"] = request.n
+        spec["replicates"] = request.replicates if request.rule == "sobol" else 1
+        if request.seed is None:
+            digest = hashlib.sha256(_canonical(spec)).digest()
+            spec["seed"] = int.from_bytes(digest[:8], "little") >> 1
+        else:
+            spec["seed"] = request.seed
+    elif request.rule == "grid":
+        spec["weights"] = request.weights
+    elif request.rule == "custom":
+        assert request.components is not None
+        spec["components"] = {
+            k: v.model_dump(mode="json") for k, v in sorted(request.components.items())
+        }
+    return spec
 
 
 def build_plan(classified: Classified, spec: Mapping[str, Any]) -> Plan:
@@ -140,20 +179,49 @@ def build_plan(classified: Classified, spec: Mapping[str, Any]) -> Plan:
     cached = _PLANS.get(plan_id)
     if cached is not None:
         return cast(Plan, cached)
-    if classified.problem.domain.time is None:
+    domain = classified.problem.domain
+    names = classified.components()
+    if domain.time is None:
         raise PlanInvalid(
             "plan_invalid", "steady problems are not supported by this rule yet", "problem.time"
         )
+    rule = spec.get("rule", "gauss-legendre")
+    points, panels = spec.get("points", {}), spec.get("panels", {})
     try:
-        plan = build_gauss_plan(
-            classified.problem.domain,
-            classified.components(),
-            spec.get("points", {}),
-            spec.get("panels", {}),
-            spec,
-        )
+        if rule == "gauss-legendre":
+            plan = build_gauss_plan(domain, names, points, panels, spec)
+        elif rule in ("sobol", "monte-carlo"):
+            plan = build_sampled_plan(
+                domain,
+                names,
+                rule=rule,
+                n=int(spec["n"]),
+                replicates=int(spec["replicates"]),
+                seed=int(spec["seed"]),
+                points=points,
+                panels=panels,
+                spec=spec,
+            )
+        elif rule == "grid":
+            simpson = spec.get("weights") == "simpson"
+            defaults = dict.fromkeys(("t", *domain.space_axes), 33)  # odd: Simpson and nesting
+            plan = build_gauss_plan(
+                domain,
+                names,
+                {**defaults, **points},
+                {},
+                spec,
+                axis_rule=simpson_rule if simpson else trapezoid_rule,
+                rule_name="grid-simpson" if simpson else "grid-trapezoid",
+            )
+        elif rule == "custom":
+            plan = build_custom_plan(domain, names, spec["components"], spec)
+        else:  # pragma: no cover - the schema lists the rules
+            raise PlanError(f"unknown rule {rule!r}", "rule")
     except PlanError as exc:
         raise PlanInvalid("plan_invalid", str(exc), exc.field) from exc
+    except ValueError as exc:
+        raise PlanInvalid("plan_invalid", str(exc), "points") from exc
     _PLANS.put(plan_id, plan)
     return plan
 
@@ -211,17 +279,31 @@ def certify(
     residuals: Mapping[str, object],
     model: ModelInfo | None,
     *,
+    quadrature: QuadratureOptions | None = None,
+    project: str | None = None,
     now: dt.datetime | None = None,
 ) -> CertificateDocument:
     """Compute a certificate. Raises core errors (RegularityError, ResidualError, ...)."""
     values = parse_all_regularity(classified, regularity)
     n_eq = len(classified.problem.unknowns)
     arrays, digests = validate_residuals(plan, residuals, classified.components(), n_eq)
-    inequality = classified.energy_inequality(
-        CertifyInputs(plan=plan, residuals=arrays, regularity=values)
-    )
     if plan.time is None:  # pragma: no cover - steady rules come with the elliptic family
         raise RegularityError("problem_invalid", "steady problems are not supported yet", None)
+    options = quadrature or QuadratureOptions()
+    statistical = [
+        c
+        for c in plan.components.values()
+        if c.rule in ("sobol", "monte-carlo") and c.name in ("interior", "initial")
+    ]
+    log = QuadratureLog(
+        confidence=options.confidence,
+        derivative_bounds=options.derivative_bounds,
+        residual_bounds=options.residual_bounds,
+        statistical_components=max(len(statistical), 1),
+    )
+    inputs = CertifyInputs(plan=plan, residuals=arrays, regularity=values)
+    with quadrature_log(log):
+        inequality = classified.energy_inequality(inputs)
     result = assemble_bound(inequality, plan.time)
     status = result.status
     warnings = list(inequality.warnings) + list(result.warnings)
@@ -230,10 +312,13 @@ def certify(
         warnings = [
             f"hypothesis contradicted: {m}" for m in inequality.failed_hypotheses
         ] + warnings
-    warnings.append(
-        "residual integrals use the plan's quadrature with no error term: their "
-        "rigor is heuristic (use fresh, non-training points)"
-    )
+    quad = _quadrature_section(classified, inputs, inequality, result, log, plan)
+    if quad["term"] is not None:
+        result.terms.append(quad.pop("term"))
+    else:
+        quad.pop("term")
+    warnings.extend(quad.pop("warnings"))
+    rigor = weakest(cast(Rigor, result.rigor), cast(Rigor, log.weakest_rigor))
     fam = classified.family
     spec = classified.problem.spec
     model_json = model.model_dump(mode="json") if model is not None else None
@@ -245,6 +330,8 @@ def certify(
                 "regularity": {k: regularity[k] for k in sorted(regularity)},
                 "arrays": digests,
                 "model": model_json,
+                "quadrature": options.model_dump(mode="json"),
+                "project": project,
                 "service": __version__,
             }
         )
@@ -269,7 +356,8 @@ def certify(
         "young_weight": result.young_weight,
         "warnings": warnings,
         "hypotheses": classified.hypotheses(),
-        "rigor": result.rigor,
+        "rigor": rigor,
+        "quadrature": quad,
         "vacuous_from": result.vacuous_from,
         "model": model_json,
         "regularity": {k: regularity[k] for k in sorted(regularity)},
@@ -289,6 +377,68 @@ def certify(
     }
     _scrub(document)
     return CertificateDocument(id=cert_id, document=document, body=_canonical(document))
+
+
+def _quadrature_section(
+    classified: Classified,
+    inputs: CertifyInputs,
+    inequality: EnergyInequality,
+    result: BoundResult,
+    log: QuadratureLog,
+    plan: Plan,
+) -> dict[str, Any]:
+    """What the residual integrals used, the quadrature term, and the warnings to add."""
+    warnings: list[str] = []
+    rules = sorted({c.rule for c in plan.components.values()})
+    if "custom" in rules:
+        warnings.append(
+            "custom points and weights: no quadrature error term, and if these are "
+            "the training points the residual integrals are biased low"
+        )
+    if log.weakest_rigor == "heuristic" and "custom" not in rules:
+        warnings.append(
+            "the quadrature allowance of the residual integrals is a heuristic "
+            "estimate (use fresh, non-training points)"
+        )
+    term: dict[str, Any] | None = None
+    allowance = sum(s.allowance for s in log.statements)
+    lam = result.young_weight.get("final_time")
+    if allowance > 0 and plan.time is not None and result.l2_final_time is not None:
+        plain = classified.energy_inequality(inputs)  # point estimates (no log active)
+        log_plain = final_log_at(plain, plan.time, lam if lam is not None else 1.0)
+        with_allowance = result.l2_final_time**2
+        value = with_allowance - (math.exp(log_plain) if math.isfinite(log_plain) else 0.0)
+        term = {
+            "name": "quadrature allowance",
+            "symbol": "Q",
+            "value": max(value, 0.0),
+            "formula": "bound with the upper limits of the residual integrals minus the bound "
+            "with their point estimates (same Young weight)",
+            "rigor": log.weakest_rigor,
+            "share_final_time": (max(value, 0.0) / with_allowance) if with_allowance else None,
+            "share_space_time": None,
+            "detail": "; ".join(sorted({s.method for s in log.statements})),
+        }
+    del inequality
+    return {
+        "rules": rules,
+        "confidence": log.confidence,
+        "failure_probability": log.total_failure_probability,
+        "statements": [
+            {
+                "component": s.component,
+                "rule": s.rule,
+                "rigor": s.rigor,
+                "method": s.method,
+                "failure_probability": s.failure_probability,
+                "max_allowance": s.allowance,
+                "max_estimate": s.estimate,
+            }
+            for s in log.statements
+        ],
+        "term": term,
+        "warnings": warnings,
+    }
 
 
 def _scrub(obj: Any) -> Any:

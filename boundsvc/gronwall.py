@@ -127,8 +127,32 @@ class Propagation:
     space_time_shares: Mapping[str, float] = field(default_factory=dict)
 
 
+class _LinearInterpolant:
+    """Piecewise-linear interpolation through the nodes, constant beyond the end nodes."""
+
+    def __init__(self, nodes: FloatArray, values: FloatArray) -> None:
+        self.nodes = nodes
+        self.values = values
+
+    def __call__(self, s: FloatArray) -> FloatArray:
+        return np.stack(
+            [np.interp(s, self.nodes, self.values[:, k]) for k in range(self.values.shape[1])],
+            axis=-1,
+        )
+
+
 def output_times(grid: TimeGrid) -> tuple[FloatArray, NDArray[np.bool_], NDArray[np.int64]]:
     """Panel edges and nodes in increasing order; which are nodes; and each point's panel."""
+    if grid.mode == "linear":
+        ends = [
+            t
+            for t in (grid.t0, grid.t_end)
+            if not np.any(np.isclose(grid.nodes, t, rtol=0, atol=0))
+        ]
+        times_l = np.sort(np.concatenate([grid.nodes, np.array(ends)]))
+        nodes_set = set(grid.nodes.tolist())
+        mask = np.array([t in nodes_set for t in times_l.tolist()])
+        return times_l, mask, np.zeros(times_l.size, dtype=np.int64)
     times: list[float] = [float(grid.edges[0])]
     is_node: list[bool] = [False]
     panel: list[int] = [0]
@@ -160,17 +184,20 @@ def propagate(
     times, is_node, panel_of = output_times(grid)
     names = ["initial", *forcing]
     n = grid.nodes_per_panel
-    interpolants: list[BarycentricInterpolator | None] = []
+    interpolants: list[Callable[[FloatArray], FloatArray] | None] = []
     stacked = (
         np.stack([np.asarray(forcing[k], dtype=np.float64) for k in forcing], axis=1)
         if forcing
         else np.zeros((grid.size, 0))
     )
     clip = np.array([k in nonnegative for k in forcing], dtype=bool)
-    for m in range(grid.edges.size - 1):
-        xs = grid.nodes[m * n : (m + 1) * n]
-        ys = stacked[m * n : (m + 1) * n]
-        interpolants.append(BarycentricInterpolator(xs, ys) if ys.shape[1] else None)
+    if grid.mode == "linear":
+        interpolants.append(_LinearInterpolant(grid.nodes, stacked) if stacked.shape[1] else None)
+    else:
+        for m in range(grid.edges.size - 1):
+            xs = grid.nodes[m * n : (m + 1) * n]
+            ys = stacked[m * n : (m + 1) * n]
+            interpolants.append(BarycentricInterpolator(xs, ys) if ys.shape[1] else None)
 
     first_pole = min((p for p in rate.poles if p > times[0]), default=None)
     log_y = np.full(times.size, np.nan)
@@ -254,7 +281,7 @@ def _advance(
     rate: Rate,
     p: float,
     q: float,
-    interp: BarycentricInterpolator | None,
+    interp: Callable[[FloatArray], FloatArray] | None,
     clip: NDArray[np.bool_],
     scale: float,
     v: FloatArray,

@@ -17,49 +17,116 @@ from boundsvc.quadrature import Plan
 FloatArray = NDArray[np.float64]
 
 
+# float32 -> float64 conversion is exact, but a float32 residual differs from the float64
+# residual it stands for by up to half an ulp: |r| <= |r32| (1 + 2^-24) / (1 - 2^-24) < |r32|
+# (1 + 2^-23). Magnitudes are inflated by this factor (the explicit rounding term).
+FLOAT32_INFLATION = 1.0 + 2.0**-23
+FLOAT32_COMPONENTS = ("interior", "initial")
+
+
+def _from_array(name: str, arr: np.ndarray, n_equations: int) -> FloatArray:
+    field = f"residuals.{name}"
+    if arr.dtype == np.float64:
+        out = np.asarray(arr, dtype="<f8")
+    elif arr.dtype == np.float32:
+        if name not in FLOAT32_COMPONENTS:
+            raise ResidualError(
+                "residual_dtype",
+                f"{name}: float32 is accepted for "
+                f"{' and '.join(FLOAT32_COMPONENTS)} only (their squares enter "
+                "the bound with a positive sign); send float64",
+                field,
+            )
+        out = arr.astype("<f8") * FLOAT32_INFLATION
+    else:
+        raise ResidualError(
+            "residual_dtype",
+            f"{name}: dtype {arr.dtype} is not accepted (float64, or float32 with a rounding term)",
+            field,
+        )
+    if n_equations > 1 and out.ndim == 1:
+        if out.size % n_equations:
+            raise ResidualError(
+                "residual_length",
+                f"{name}: {out.size} values do not split into rows of {n_equations} equations",
+                field,
+            )
+        out = out.reshape(-1, n_equations)
+    if out.ndim == 2 and n_equations == 1 and out.shape[1] == 1:
+        out = out[:, 0]
+    if out.ndim != (1 if n_equations == 1 else 2):
+        raise ResidualError("residual_shape", f"{name}: expected a flat array", field)
+    return out
+
+
 def decode_values(name: str, values: object, n_equations: int) -> FloatArray:
     """One component's values as a float64 array (n,) or (n, n_equations)."""
     field = f"residuals.{name}"
+    if isinstance(values, np.ndarray):
+        return _from_array(name, values, n_equations)
     if isinstance(values, EncodedArray):
+        if values.dtype == "float32":
+            try:
+                raw32 = base64.b64decode(values.data, validate=True)
+            except (binascii.Error, ValueError) as exc:
+                raise ResidualError(
+                    "residual_encoding", f"{name}: the data is not valid base64", field
+                ) from exc
+            if len(raw32) % 4:
+                raise ResidualError("residual_encoding", f"{name}: not whole float32 values", field)
+            return _from_array(name, np.frombuffer(raw32, dtype="<f4"), n_equations)
         if values.dtype != "float64":
-            raise ResidualError("residual_dtype", f"{name}: only float64 is accepted on this "
-                                "route (got {values.dtype})", field)
+            raise ResidualError(
+                "residual_dtype", f"{name}: unsupported dtype {values.dtype}", field
+            )
         try:
             raw = base64.b64decode(values.data, validate=True)
         except (binascii.Error, ValueError) as exc:
-            raise ResidualError("residual_encoding", f"{name}: the data is not valid base64",
-                                field) from exc
+            raise ResidualError(
+                "residual_encoding", f"{name}: the data is not valid base64", field
+            ) from exc
         if len(raw) % 8:
-            raise ResidualError("residual_encoding",
-                                f"{name}: {len(raw)} bytes is not a whole number of float64 "
-                                "values", field)
+            raise ResidualError(
+                "residual_encoding",
+                f"{name}: {len(raw)} bytes is not a whole number of float64 values",
+                field,
+            )
         arr = np.frombuffer(raw, dtype="<f8")
         if n_equations > 1:
             if arr.size % n_equations:
-                raise ResidualError("residual_length",
-                                    f"{name}: {arr.size} values do not split into rows of "
-                                    f"{n_equations} equations", field)
+                raise ResidualError(
+                    "residual_length",
+                    f"{name}: {arr.size} values do not split into rows of {n_equations} equations",
+                    field,
+                )
             arr = arr.reshape(-1, n_equations)
         return arr
     if not isinstance(values, list):
-        raise ResidualError("residual_encoding", f"{name}: expected a list or an encoded array",
-                            field)
+        raise ResidualError(
+            "residual_encoding", f"{name}: expected a list or an encoded array", field
+        )
     if values and isinstance(values[0], list):
         try:
             arr = np.asarray(values, dtype=np.float64)
         except (ValueError, TypeError) as exc:
-            raise ResidualError("residual_shape", f"{name}: rows have different lengths",
-                                field) from exc
+            raise ResidualError(
+                "residual_shape", f"{name}: rows have different lengths", field
+            ) from exc
         if arr.ndim != 2 or arr.shape[1] != n_equations:
-            raise ResidualError("residual_shape",
-                                f"{name}: expected rows of {n_equations} value(s), got shape "
-                                f"{arr.shape}", field)
+            raise ResidualError(
+                "residual_shape",
+                f"{name}: expected rows of {n_equations} value(s), got shape {arr.shape}",
+                field,
+            )
         return arr[:, 0] if n_equations == 1 else arr
     arr = np.asarray(values, dtype=np.float64)
     if n_equations > 1:
-        raise ResidualError("residual_shape",
-                            f"{name}: this problem has {n_equations} equations; send rows "
-                            "[[r1, r2, ...], ...] or a flat base64 array", field)
+        raise ResidualError(
+            "residual_shape",
+            f"{name}: this problem has {n_equations} equations; send rows "
+            "[[r1, r2, ...], ...] or a flat base64 array",
+            field,
+        )
     return arr
 
 
@@ -72,29 +139,39 @@ def validate_residuals(
     """Decode every component, check length and finiteness; return arrays and their SHA-256."""
     for name in raw:
         if name not in plan.components:
-            raise ResidualError("residual_unknown_component",
-                                f"the plan has no component {name!r} (it has "
-                                f"{', '.join(plan.components)})", f"residuals.{name}")
+            raise ResidualError(
+                "residual_unknown_component",
+                f"the plan has no component {name!r} (it has {', '.join(plan.components)})",
+                f"residuals.{name}",
+            )
     arrays: dict[str, FloatArray] = {}
     digests: dict[str, str] = {}
     for name in needed:
         if name not in raw:
-            raise ResidualError("residual_missing",
-                                f"the residual component {name!r} is needed by the theorem and "
-                                "missing", f"residuals.{name}")
+            raise ResidualError(
+                "residual_missing",
+                f"the residual component {name!r} is needed by the theorem and missing",
+                f"residuals.{name}",
+            )
     for name, values in raw.items():
         arr = decode_values(name, values, n_equations)
         expected = plan.components[name].size
         if arr.shape[0] != expected:
-            raise ResidualError("residual_length",
-                                f"{name}: {arr.shape[0]} values for {expected} plan points",
-                                f"residuals.{name}", index=min(arr.shape[0], expected))
+            raise ResidualError(
+                "residual_length",
+                f"{name}: {arr.shape[0]} values for {expected} plan points",
+                f"residuals.{name}",
+                index=min(arr.shape[0], expected),
+            )
         finite = np.isfinite(arr) if arr.ndim == 1 else np.isfinite(arr).all(axis=1)
         if not finite.all():
             first = int(np.argmin(finite))
-            raise ResidualError("residual_not_finite",
-                                f"{name}: value at index {first} is not finite",
-                                f"residuals.{name}", index=first)
+            raise ResidualError(
+                "residual_not_finite",
+                f"{name}: value at index {first} is not finite",
+                f"residuals.{name}",
+                index=first,
+            )
         contiguous = np.ascontiguousarray(arr, dtype="<f8")
         digests[name] = hashlib.sha256(contiguous.tobytes()).hexdigest()
         arrays[name] = contiguous

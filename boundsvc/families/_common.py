@@ -8,6 +8,7 @@ import numpy as np
 import sympy
 from numpy.typing import NDArray
 
+from boundsvc.expr import ExpressionError, Namespace
 from boundsvc.families._analysis import AnalysedProblem
 from boundsvc.quadrature import Plan
 from boundsvc.regularity import RegularityValue
@@ -144,3 +145,31 @@ def reg_symbol(key: str, time_varying: bool = True) -> sympy.Expr:
     """A display-only symbol for a regularity key (our fixed key names, never user text)."""
     t = sympy.Symbol("t", real=True)
     return sympy.Function(key)(t) if time_varying else sympy.Symbol(key)
+
+
+def _display_map(
+    expr: sympy.Expr, ns: Namespace, latex: bool
+) -> tuple[sympy.Expr, dict[sympy.Symbol, str]]:
+    mapping: dict[sympy.Symbol, sympy.Symbol] = {}
+    names: dict[sympy.Symbol, str] = {}
+    for s in expr.free_symbols:
+        try:
+            info = ns.describe(s)
+        except ExpressionError:
+            continue  # one of our own display symbols (lambda, G_u, ...)
+        shown = sympy.Symbol(info.name, real=True)
+        mapping[s] = shown
+        names[shown] = ns.latex_name(s) if latex else info.name
+    return expr.xreplace(mapping), names
+
+
+def display_text(expr: sympy.Expr, ns: Namespace) -> str:
+    """Text of an expression mixing namespace symbols and our own display symbols."""
+    shown, _ = _display_map(expr, ns, latex=False)
+    return sympy.sstr(shown).replace("**", "^")
+
+
+def display_latex(expr: sympy.Expr, ns: Namespace) -> str:
+    """LaTeX of an expression mixing namespace symbols and our own display symbols."""
+    shown, names = _display_map(expr, ns, latex=True)
+    return str(sympy.latex(shown, symbol_names=names))

@@ -27,7 +27,7 @@ import numpy as np
 import sympy
 
 from boundsvc.errors import RegularityError
-from boundsvc.expr import to_text
+from boundsvc.expr import time_symbol, to_text
 from boundsvc.families._analysis import AnalysedProblem
 from boundsvc.families._base import (
     CertifyInputs,
@@ -42,10 +42,9 @@ from boundsvc.families._base import (
 from boundsvc.families._common import best_of, data_contradictions, evaluate_on
 from boundsvc.families._linear import affine_split, field_names
 from boundsvc.gronwall import Rate
-from boundsvc.expr import time_symbol
 from boundsvc.intervals import IntervalError, certified_max
-from boundsvc.regularity import RegularityValue
 from boundsvc.quadrature import face_slice_integrals, slice_integrals, total_integral
+from boundsvc.regularity import RegularityValue
 
 REFERENCE = (
     "Relative entropy method: C. M. Dafermos, Hyperbolic Conservation Laws in Continuum "
@@ -99,7 +98,7 @@ class ConservationLawFamily(Family):
             and info.kind == "field"
         ]
         if others:
-            names = ", ".join(sorted(ns.describe(s).name for s in others))  # type: ignore[union-attr]
+            names = ", ".join(sorted(ns.describe(s).name for s in others))
             return f"the equation contains {names}; a conservation law has u_t, u_x, u_xx only"
         split = affine_split(expr, [ut, ux, uxx])
         if isinstance(split, str):

@@ -8,8 +8,8 @@ from __future__ import annotations
 
 import hashlib
 import json
-from collections.abc import Mapping, Sequence
-from dataclasses import dataclass, field
+from collections.abc import Callable, Mapping, Sequence
+from dataclasses import dataclass, field, replace
 from typing import Any
 
 import numpy as np
@@ -20,6 +20,7 @@ from boundsvc.quadrature._gauss import gauss_legendre
 
 FloatArray = NDArray[np.float64]
 IntArray = NDArray[np.int64]
+AxisRule = Callable[[int, float, float, int], tuple[FloatArray, FloatArray, FloatArray]]
 
 DEFAULT_POINTS = {"t": 32, "x": 32, "y": 16, "z": 12}
 MAX_PLAN_POINTS = 4_000_000
@@ -54,6 +55,10 @@ class TimeGrid:
     nodes: FloatArray
     weights: FloatArray
     nodes_per_panel: int
+    # "gauss": Gauss-Legendre nodes inside each panel, forcing interpolated by the panel's
+    # polynomial; "linear": arbitrary sorted nodes (grids, client points), forcing interpolated
+    # piecewise linearly (constant beyond the first and last node), one panel.
+    mode: str = "gauss"
 
     @property
     def t0(self) -> float:
@@ -85,6 +90,16 @@ class Component:
     slice_weights: FloatArray | None = None
     faces: tuple[Face, ...] = ()
     face_index: IntArray | None = None
+    # How the space part of each time slice was sampled, for the error statement:
+    # "gauss-legendre" (tensor, ``space_shape`` nodes per axis, ``space_panels`` panels),
+    # "sobol" / "monte-carlo" (``replicate_index`` of each point), "grid-trapezoid",
+    # "grid-simpson", or "custom".
+    rule: str = "gauss-legendre"
+    space_shape: tuple[int, ...] = ()
+    space_panels: tuple[int, ...] = ()
+    replicate_index: IntArray | None = None
+    replicates: int = 1
+    space_lengths: tuple[float, ...] = ()
 
     @property
     def size(self) -> int:
@@ -151,12 +166,18 @@ def build_gauss_plan(
     points: Mapping[str, int],
     panels: Mapping[str, int],
     spec: Mapping[str, Any],
+    axis_rule: AxisRule | None = None,
+    rule_name: str = "gauss-legendre",
 ) -> Plan:
-    """Tensor Gauss-Legendre plan over ``[t0, T] x space`` with the requested components.
+    """Tensor plan over ``[t0, T] x space`` with the requested components.
+
+    ``axis_rule(n, low, high, panels) -> (nodes, weights, edges)`` is the 1-D rule on every
+    axis (composite Gauss-Legendre by default; uniform grids give a "linear" time grid).
 
     Point order is C order over the axes ``(t, x, y, z)``: time is the slowest index, so the
     points of one time slice are contiguous.
     """
+    rule_1d = axis_rule or gauss_legendre
     counts = _counts(domain, points, panels)
     total = 1
     for n, m in counts.values():
@@ -170,13 +191,22 @@ def build_gauss_plan(
     time_grid: TimeGrid | None = None
     if domain.time is not None:
         n, m = counts["t"]
-        nodes, weights, edges = gauss_legendre(n, domain.time[0], domain.time[1], m)
+        nodes, weights, edges = rule_1d(n, domain.time[0], domain.time[1], m)
         axis_nodes["t"], axis_weights["t"] = nodes, weights
-        time_grid = TimeGrid(edges=edges, nodes=nodes, weights=weights, nodes_per_panel=n)
+        if axis_rule is None:
+            time_grid = TimeGrid(edges=edges, nodes=nodes, weights=weights, nodes_per_panel=n)
+        else:
+            time_grid = TimeGrid(
+                edges=np.array([domain.time[0], domain.time[1]]),
+                nodes=nodes,
+                weights=weights,
+                nodes_per_panel=nodes.size,
+                mode="linear",
+            )
     for axis in domain.space_axes:
         n, m = counts[axis]
         low, high = domain.space[axis]
-        nodes, weights, _ = gauss_legendre(n, low, high, m)
+        nodes, weights, _ = rule_1d(n, low, high, m)
         axis_nodes[axis], axis_weights[axis] = nodes, weights
 
     space = list(domain.space_axes)
@@ -188,6 +218,11 @@ def build_gauss_plan(
                 [axis_nodes[a] for a in all_axes], [axis_weights[a] for a in all_axes]
             )
             comps[name] = _sliced(name, tuple(all_axes), pts, wts, time_grid)
+        elif name == "initial" and not space and time_grid is not None:
+            # ODE system (no space axes): the single point t0, axes ["t"], weight 1
+            comps[name] = Component(
+                name=name, axes=("t",), points=np.array([[time_grid.t0]]), weights=np.ones(1)
+            )
         elif name == "initial":
             pts, wts = _tensor([axis_nodes[a] for a in space], [axis_weights[a] for a in space])
             comps[name] = Component(name=name, axes=tuple(space), points=pts, weights=wts)
@@ -208,9 +243,20 @@ def build_gauss_plan(
             )
         else:  # pragma: no cover - families only ask for the names above
             raise PlanError(f"unknown component {name!r}", "components")
+    shape = tuple(counts[a][0] * counts[a][1] for a in space)
+    panels_per_axis = tuple(counts[a][1] for a in space)
+    for name in ("interior", "initial"):
+        if name in comps:
+            comps[name] = replace(
+                comps[name],
+                space_shape=shape,
+                space_panels=panels_per_axis,
+                rule=rule_name,
+                space_lengths=tuple(domain.length(a) for a in space),
+            )
     return Plan(
         plan_id=plan_id_for(spec),
-        rule="gauss-legendre",
+        rule=rule_name,
         spec=dict(spec),
         components=comps,
         time=time_grid,

@@ -5,14 +5,16 @@ from __future__ import annotations
 import datetime as dt
 from typing import Any
 
-from fastapi import APIRouter, Depends, Query
+from fastapi import APIRouter, Depends, Query, Request
+from starlette.concurrency import run_in_threadpool
 from starlette.responses import Response
 
 from api_schemas import CertificatePage, CertificateRequest
 from boundsvc.api.deps import Caller, get_caller, get_store
 from boundsvc.api.routes._resolve import resolve_plan, resolve_problem
-from boundsvc.certify import certify
-from boundsvc.errors import BoundsvcError, NotFound, PlanInvalid
+from boundsvc.api.routes._transport import decode_upload, split_octets
+from boundsvc.certify import build_plan, certify
+from boundsvc.errors import BoundsvcError, NotFound
 from boundsvc.store import CertificateConflict, InvalidCursor, Store
 
 router = APIRouter(prefix="/v1", tags=["certificates"])
@@ -20,28 +22,113 @@ router = APIRouter(prefix="/v1", tags=["certificates"])
 JSON = "application/json"
 
 
-@router.post("/certificates", status_code=201,
-             responses={201: {"description": "the certificate (stored)"}})
-def post_certificate(body: CertificateRequest, store: Store = Depends(get_store),
-                     caller: Caller = Depends(get_caller)) -> Response:
-    """Compute, store and return a certificate."""
+@router.post(
+    "/certificates", status_code=201, responses={201: {"description": "the certificate (stored)"}}
+)
+def post_certificate(
+    body: CertificateRequest,
+    store: Store = Depends(get_store),
+    caller: Caller = Depends(get_caller),
+) -> Response:
+    """Compute, store and return a certificate (residuals as JSON lists or base64)."""
+    return create_certificate(store, caller, body, None)
+
+
+@router.post(
+    "/certificates/upload",
+    status_code=201,
+    responses={201: {"description": "the certificate (stored)"}},
+    openapi_extra={
+        "requestBody": {
+            "required": True,
+            "content": {
+                "application/x-npz": {"schema": {"type": "string", "format": "binary"}},
+                "application/octet-stream": {"schema": {"type": "string", "format": "binary"}},
+            },
+        },
+        "parameters": [
+            {
+                "name": "X-Boundsvc-Request",
+                "in": "header",
+                "required": False,
+                "schema": {"type": "string"},
+                "description": "octet-stream only: base64url of the request JSON",
+            }
+        ],
+    },
+)
+async def upload_certificate(
+    request: Request, store: Store = Depends(get_store), caller: Caller = Depends(get_caller)
+) -> Response:
+    """Residuals as binary: one ``.npz`` (arrays per component and a ``request`` member), or
+    raw little-endian float64 components concatenated in plan order (``octet-stream``, the
+    rest of the request in the ``X-Boundsvc-Request`` header). See docs/api.md."""
+    raw = await request.body()
+    content_type = request.headers.get("content-type", "").split(";")[0].strip().lower()
+    body, arrays = decode_upload(content_type, raw, request.headers.get("x-boundsvc-request"))
+    resolved = await run_in_threadpool(_resolve_layout, store, body, arrays)
+    return await run_in_threadpool(create_certificate, store, caller, body, resolved)
+
+
+def _resolve_layout(
+    store: Store, body: CertificateRequest, arrays: dict[str, Any]
+) -> dict[str, Any]:
+    """Split a raw octet-stream into components using the plan's sizes."""
+    if "__raw__" not in arrays:
+        return arrays
     _, pid, classified = resolve_problem(store, body.problem, body.problem_id)
-    if body.plan_id is None:
-        raise PlanInvalid("plan_invalid", "inline plans are not accepted on this version; "
-                          "request a plan with POST /v1/plans and send its plan_id", "plan")
-    plan = resolve_plan(store, classified, pid, body.plan_id)
-    doc = certify(classified, pid, plan, body.regularity, body.residuals, body.model)
+    plan = _plan_for(store, classified, pid, body)
+    return split_octets(
+        arrays["__raw__"], plan, arrays.get("__layout__"), len(classified.problem.unknowns)
+    )
+
+
+def _plan_for(store: Store, classified: Any, pid: str, body: CertificateRequest) -> Any:
+    if body.plan_id is not None:
+        return resolve_plan(store, classified, pid, body.plan_id)
+    assert body.plan is not None
+    spec = {
+        "problem_id": pid,
+        "rule": "custom",
+        "components": {k: v.model_dump(mode="json") for k, v in sorted(body.plan.items())},
+    }
+    return build_plan(classified, spec)
+
+
+def create_certificate(
+    store: Store, caller: Caller, body: CertificateRequest, arrays: dict[str, Any] | None
+) -> Response:
+    """Resolve problem and plan, certify, store (content-addressed, first write wins)."""
+    _, pid, classified = resolve_problem(store, body.problem, body.problem_id)
+    plan = _plan_for(store, classified, pid, body)
+    residuals: dict[str, Any] = dict(body.residuals)
+    if arrays:
+        residuals.update(arrays)
+    doc = certify(
+        classified,
+        pid,
+        plan,
+        body.regularity,
+        residuals,
+        body.model,
+        quadrature=body.quadrature,
+        project=caller.write_project,
+    )
     existing = store.get_certificate(doc.id, None)
     if existing is not None:
         return Response(existing.document, status_code=201, media_type=JSON)
     model = body.model
     try:
         store.put_certificate(
-            id=doc.id, project=caller.write_project,
+            id=doc.id,
+            project=caller.write_project,
             model_name=(model.name if model and model.name else ""),
             model_version=model.version if model else None,
-            family=classified.family.id, status=doc.document["status"], document=doc.body,
-            problem_id=pid, plan_id=plan.plan_id,
+            family=classified.family.id,
+            status=doc.document["status"],
+            document=doc.body,
+            problem_id=pid,
+            plan_id=plan.plan_id if body.plan_id is not None else None,
             created_at=dt.datetime.fromisoformat(doc.document["provenance"]["created_at"]),
         )
     except CertificateConflict:
@@ -54,13 +141,15 @@ def post_certificate(body: CertificateRequest, store: Store = Depends(get_store)
 
 
 @router.get("/certificates/{certificate_id}", responses={200: {"description": "the certificate"}})
-def get_certificate(certificate_id: str, store: Store = Depends(get_store),
-                    caller: Caller = Depends(get_caller)) -> Response:
+def get_certificate(
+    certificate_id: str, store: Store = Depends(get_store), caller: Caller = Depends(get_caller)
+) -> Response:
     """The stored certificate, byte for byte as it was stored."""
     stored = store.get_certificate(certificate_id, caller.project)
     if stored is None:
-        raise NotFound("certificate_not_found", f"no certificate with id {certificate_id!r}",
-                       "certificate_id")
+        raise NotFound(
+            "certificate_not_found", f"no certificate with id {certificate_id!r}", "certificate_id"
+        )
     return Response(stored.document, media_type=JSON)
 
 
@@ -85,19 +174,31 @@ def list_certificates(
             raise BoundsvcError("invalid_query", f"{name} needs a timezone (e.g. ...Z)", name)
     try:
         page = store.list_certificates(
-            caller.project, model_name=model or model_name,
-            model_version=version or model_version, family=family,
-            status=status, created_after=created_after, created_before=created_before,
-            limit=limit, cursor=cursor)
+            caller.project,
+            model_name=model or model_name,
+            model_version=version or model_version,
+            family=family,
+            status=status,
+            created_after=created_after,
+            created_before=created_before,
+            limit=limit,
+            cursor=cursor,
+        )
     except InvalidCursor as exc:
         err = BoundsvcError("invalid_cursor", str(exc), "cursor")
         err.status = 400
         raise err from exc
     return {
         "items": [
-            {"id": s.id, "status": s.status, "family": s.family,
-             "created_at": s.created_at.isoformat(), "model_name": s.model_name or None,
-             "model_version": s.model_version, "project": s.project}
+            {
+                "id": s.id,
+                "status": s.status,
+                "family": s.family,
+                "created_at": s.created_at.isoformat(),
+                "model_name": s.model_name or None,
+                "model_version": s.model_version,
+                "project": s.project,
+            }
             for s in page.items
         ],
         "next_cursor": page.next_cursor,
