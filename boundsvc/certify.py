@@ -54,28 +54,37 @@ CAUTION = (
 
 
 class _LRU:
-    def __init__(self, size: int) -> None:
-        self._data: OrderedDict[str, Any] = OrderedDict()
+    """A small thread-safe LRU cache, bounded by entry count and by total weight."""
+
+    def __init__(self, size: int, max_weight: float = float("inf")) -> None:
+        self._data: OrderedDict[str, tuple[Any, float]] = OrderedDict()
         self._size = size
+        self._max_weight = max_weight
+        self._weight = 0.0
         self._lock = threading.Lock()
 
     def get(self, key: str) -> Any | None:
         with self._lock:
             if key in self._data:
                 self._data.move_to_end(key)
-                return self._data[key]
+                return self._data[key][0]
         return None
 
-    def put(self, key: str, value: Any) -> None:
+    def put(self, key: str, value: Any, weight: float = 1.0) -> None:
         with self._lock:
-            self._data[key] = value
-            self._data.move_to_end(key)
-            while len(self._data) > self._size:
-                self._data.popitem(last=False)
+            if key in self._data:
+                self._weight -= self._data.pop(key)[1]
+            self._data[key] = (value, weight)
+            self._weight += weight
+            while len(self._data) > 1 and (
+                len(self._data) > self._size or self._weight > self._max_weight
+            ):
+                _, (_, w) = self._data.popitem(last=False)
+                self._weight -= w
 
 
 _DERIVATIONS = _LRU(256)
-_PLANS = _LRU(64)
+_PLANS = _LRU(64, max_weight=4e7)  # weight: stored points (memory)
 
 
 def derive(problem: ProblemSpec) -> Classified:
@@ -222,29 +231,36 @@ def build_plan(classified: Classified, spec: Mapping[str, Any]) -> Plan:
         raise PlanInvalid("plan_invalid", str(exc), exc.field) from exc
     except ValueError as exc:
         raise PlanInvalid("plan_invalid", str(exc), "points") from exc
-    _PLANS.put(plan_id, plan)
+    _PLANS.put(plan_id, plan, sum(c.size for c in plan.components.values()))
     return plan
 
 
-def plan_body(plan: Plan, problem_id: str) -> dict[str, Any]:
-    """Body of POST /v1/plans."""
+def plan_body(plan: Plan, problem_id: str, *, with_arrays: bool = True) -> dict[str, Any]:
+    """Body of POST /v1/plans (JSON rows; without the arrays for the binary formats)."""
+    spec = plan.spec
+    warnings: list[str] = []
+    if plan.rule == "custom":
+        warnings.append(
+            "custom points: no quadrature error term; evaluating residuals at the "
+            "training points biases the bound low"
+        )
+    components = []
+    for c in plan.components.values():
+        item: dict[str, Any] = {"name": c.name, "axes": list(c.axes), "size": c.size}
+        if with_arrays:
+            item["points"] = c.points.tolist()
+            item["weights"] = c.weights.tolist()
+        components.append(item)
     return {
         "plan_id": plan.plan_id,
         "rule": plan.rule,
         "problem_id": problem_id,
-        "components": [
-            {
-                "name": c.name,
-                "axes": list(c.axes),
-                "points": c.points.tolist(),
-                "weights": c.weights.tolist(),
-                "size": c.size,
-            }
-            for c in plan.components.values()
-        ],
+        "components": components,
         "axis_nodes": {k: v.tolist() for k, v in plan.axis_nodes.items()},
         "time_nodes": plan.time.nodes.tolist() if plan.time is not None else [],
-        "warnings": [],
+        "warnings": warnings,
+        "seed": spec.get("seed"),
+        "replicates": spec.get("replicates"),
     }
 
 

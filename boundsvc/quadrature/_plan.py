@@ -23,7 +23,7 @@ IntArray = NDArray[np.int64]
 AxisRule = Callable[[int, float, float, int], tuple[FloatArray, FloatArray, FloatArray]]
 
 DEFAULT_POINTS = {"t": 32, "x": 32, "y": 16, "z": 12}
-MAX_PLAN_POINTS = 4_000_000
+MAX_PLAN_POINTS = 16_000_000
 
 
 class PlanError(ValueError):

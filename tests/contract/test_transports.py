@@ -224,3 +224,21 @@ def test_monte_carlo_grid_and_custom_plans(client: InProcessClient) -> None:
     )
     assert r.status_code == 201, r.text
     assert any("custom points" in w for w in r.json()["warnings"])
+
+
+def test_plan_formats_agree(client: InProcessClient) -> None:
+    rows = _plan(client, points={"t": 4, "x": 6})
+    pid = rows["plan_id"]
+    b64 = client.get(f"/v1/plans/{pid}", params={"format": "base64"}).json()
+    npz = client.get(f"/v1/plans/{pid}", params={"format": "npz"})
+    assert npz.headers["content-type"] == "application/x-npz"
+    archive = np.load(io.BytesIO(npz.content), allow_pickle=False)
+    meta = json.loads(archive["meta"].tobytes())
+    assert meta["plan_id"] == pid
+    for comp, enc in zip(rows["components"], b64["components"], strict=True):
+        pts = np.frombuffer(base64.b64decode(enc["points"]["data"]), "<f8").reshape(
+            enc["points"]["shape"]
+        )
+        np.testing.assert_array_equal(pts, np.asarray(comp["points"]))
+        np.testing.assert_array_equal(archive[f"{comp['name']}.weights"], comp["weights"])
+    assert rows["axis_nodes"]["x"] and len(rows["time_nodes"]) == 4
