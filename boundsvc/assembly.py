@@ -9,7 +9,7 @@ from typing import cast
 import numpy as np
 from numpy.typing import NDArray
 
-from boundsvc.families._base import EnergyInequality, Rigor, SourceInfo, weakest
+from boundsvc.families._base import EnergyInequality, Rigor, SourceInfo, SteadyBound, weakest
 from boundsvc.gronwall import LOG_FLOAT_MAX, Propagation, propagate
 from boundsvc.quadrature import TimeGrid
 
@@ -36,6 +36,29 @@ class BoundResult:
     young_weight: dict[str, float | None]
     warnings: list[str] = field(default_factory=list)
     rigor: str = "heuristic"
+    l2_space: float | None = None
+    sup_space: float | None = None
+
+
+def steady_result(steady: SteadyBound) -> BoundResult:
+    """A steady theorem's bound in the shape of a certificate (no time profile)."""
+    return BoundResult(
+        status="valid" if math.isfinite(steady.l2_space) else "vacuous",
+        l2_space_time=None,
+        l2_final_time=None,
+        log10_l2_space_time=None,
+        log10_l2_final_time=None,
+        profile_t=[],
+        profile_bound=[],
+        vacuous_from=None,
+        ended_by=None,
+        terms=steady.terms,
+        young_weight={},
+        warnings=list(steady.warnings),
+        rigor=weakest(steady.rigor, *[cast(Rigor, t["rigor"]) for t in steady.terms]),
+        l2_space=steady.l2_space if math.isfinite(steady.l2_space) else None,
+        sup_space=steady.sup_space,
+    )
 
 
 def _run(ineq: EnergyInequality, grid: TimeGrid, lam: float) -> Propagation:

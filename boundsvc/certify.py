@@ -19,8 +19,8 @@ from typing import Any, cast
 
 from api_schemas import ModelInfo, PlanRequest, ProblemSpec, QuadratureOptions
 from boundsvc import __version__
-from boundsvc.assembly import BoundResult, assemble_bound, final_log_at
-from boundsvc.errors import PlanInvalid, RegularityError
+from boundsvc.assembly import BoundResult, assemble_bound, final_log_at, steady_result
+from boundsvc.errors import PlanInvalid
 from boundsvc.families import (
     CertifyInputs,
     Classified,
@@ -190,11 +190,14 @@ def build_plan(classified: Classified, spec: Mapping[str, Any]) -> Plan:
         return cast(Plan, cached)
     domain = classified.problem.domain
     names = classified.components()
-    if domain.time is None:
-        raise PlanInvalid(
-            "plan_invalid", "steady problems are not supported by this rule yet", "problem.time"
-        )
     rule = spec.get("rule", "gauss-legendre")
+    if domain.time is None and rule not in ("gauss-legendre", "grid"):
+        raise PlanInvalid(
+            "plan_invalid",
+            f"the {rule} rule needs a time interval; steady "
+            "problems use gauss-legendre or grid plans",
+            "rule",
+        )
     points, panels = spec.get("points", {}), spec.get("panels", {})
     try:
         if rule == "gauss-legendre":
@@ -303,8 +306,6 @@ def certify(
     values = parse_all_regularity(classified, regularity)
     n_eq = len(classified.problem.unknowns)
     arrays, digests = validate_residuals(plan, residuals, classified.components(), n_eq)
-    if plan.time is None:  # pragma: no cover - steady rules come with the elliptic family
-        raise RegularityError("problem_invalid", "steady problems are not supported yet", None)
     options = quadrature or QuadratureOptions()
     statistical = [
         c
@@ -318,9 +319,15 @@ def certify(
         statistical_components=max(len(statistical), 1),
     )
     inputs = CertifyInputs(plan=plan, residuals=arrays, regularity=values)
-    with quadrature_log(log):
-        inequality = classified.energy_inequality(inputs)
-    result = assemble_bound(inequality, plan.time)
+    if plan.time is None:
+        with quadrature_log(log):
+            steady = classified.steady_bound(inputs)
+        result = steady_result(steady)
+        inequality = EnergyInequality.for_steady(steady)
+    else:
+        with quadrature_log(log):
+            inequality = classified.energy_inequality(inputs)
+        result = assemble_bound(inequality, plan.time)
     status = result.status
     warnings = list(inequality.warnings) + list(result.warnings)
     if inequality.failed_hypotheses:
@@ -361,12 +368,21 @@ def certify(
         "family": fam.id,
         "problem_id": problem_id,
         "bound": {
+            **(
+                {"l2_space": result.l2_space, "sup_space": result.sup_space}
+                if plan.time is None
+                else {}
+            ),
             "l2_space_time": result.l2_space_time,
             "l2_final_time": result.l2_final_time,
             "log10_l2_space_time": result.log10_l2_space_time,
             "log10_l2_final_time": result.log10_l2_final_time,
         },
-        "time_profile": {"t": result.profile_t, "l2_error_bound": result.profile_bound},
+        "time_profile": (
+            None
+            if plan.time is None
+            else {"t": result.profile_t, "l2_error_bound": result.profile_bound}
+        ),
         "terms": result.terms,
         "constants": constants,
         "young_weight": result.young_weight,

@@ -92,6 +92,12 @@ class EnergyInequality:
     Euclidean norm), ``Y(t0) <= initial``; ``lambda > 0`` is the free Young weight of
     ``2 (R, w) <= lambda ||w||^2 + ||R||^2 / lambda`` (chosen by the assembly); when
     ``young`` is False the inequality has no Young weight (``residual`` is then unused).
+
+    ``squared = False`` selects the linear (non-squared) form: ``Y(t)`` is then the error norm
+    itself (``||e(t)||``, not its square), ``Y' <= base_rate(t) Y + sum_src forcing_src(t)``
+    with the forcing in norm units (e.g. ``||R(t)||``), ``residual`` is ``None`` (no Young
+    weight), and the assembly reports ``Y`` without a square root
+    (``l2_space_time = (int Y^2 dt)^(1/2)``).
     """
 
     base_rate: Rate
@@ -108,6 +114,16 @@ class EnergyInequality:
     rate_rigor: Rigor = "proven"
     inputs: dict[str, float] = field(default_factory=dict)
 
+    @classmethod
+    def for_steady(cls, steady: SteadyBound) -> EnergyInequality:
+        """A carrier of a steady bound's constants, warnings and data checks."""
+        return cls(base_rate=Rate(constant=0.0), initial=0.0,
+                   initial_info=SourceInfo("none", "", "", "proven"), residual=None,
+                   residual_info=None, constants=list(steady.constants),
+                   warnings=list(steady.warnings),
+                   failed_hypotheses=list(steady.failed_hypotheses))
+    squared: bool = True
+
 
 @dataclass(frozen=True)
 class CertifyInputs:
@@ -116,6 +132,19 @@ class CertifyInputs:
     plan: Plan
     residuals: Mapping[str, FloatArray]
     regularity: Mapping[str, RegularityValue]
+
+
+@dataclass
+class SteadyBound:
+    """The result of a steady (elliptic) theorem: no time, no Gronwall."""
+
+    l2_space: float
+    terms: list[dict[str, object]]
+    constants: list[ConstantInfo]
+    rigor: Rigor
+    sup_space: float | None = None
+    warnings: list[str] = field(default_factory=list)
+    failed_hypotheses: list[str] = field(default_factory=list)
 
 
 class Classified(ABC):
@@ -147,6 +176,10 @@ class Classified(ABC):
     @abstractmethod
     def energy_inequality(self, inputs: CertifyInputs) -> EnergyInequality:
         """The energy inequality for given residuals and regularity values."""
+
+    def steady_bound(self, inputs: CertifyInputs) -> SteadyBound:
+        """For steady problems: the bound itself (families of steady problems override)."""
+        raise NotImplementedError(f"{self.family.id} has no steady bound")
 
     def hypotheses(self) -> list[str]:
         return list(self.family.hypotheses)

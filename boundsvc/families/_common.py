@@ -8,7 +8,7 @@ import numpy as np
 import sympy
 from numpy.typing import NDArray
 
-from boundsvc.expr import ExpressionError, Namespace
+from boundsvc.expr import Namespace
 from boundsvc.families._analysis import AnalysedProblem
 from boundsvc.quadrature import Plan
 from boundsvc.regularity import RegularityValue
@@ -153,9 +153,8 @@ def _display_map(
     mapping: dict[sympy.Symbol, sympy.Symbol] = {}
     names: dict[sympy.Symbol, str] = {}
     for s in expr.free_symbols:
-        try:
-            info = ns.describe(s)
-        except ExpressionError:
+        info = ns.describe(s)
+        if info is None:
             continue  # one of our own display symbols (lambda, G_u, ...)
         shown = sympy.Symbol(info.name, real=True)
         mapping[s] = shown

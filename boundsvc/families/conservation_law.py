@@ -98,7 +98,7 @@ class ConservationLawFamily(Family):
             and info.kind == "field"
         ]
         if others:
-            names = ", ".join(sorted(ns.describe(s).name for s in others))
+            names = ", ".join(sorted(ns.display_name(s) for s in others))
             return f"the equation contains {names}; a conservation law has u_t, u_x, u_xx only"
         split = affine_split(expr, [ut, ux, uxx])
         if isinstance(split, str):
