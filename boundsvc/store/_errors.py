@@ -30,7 +30,7 @@ class StoreError(Exception):
     """Base class of every store error.  Unclassified failures map to HTTP 500."""
 
 
-class ContentConflict(StoreError):  # noqa: N818 - names fixed by the API contract
+class ContentConflict(StoreError):
     """An immutable row already exists under this id with different content (HTTP 409)."""
 
     def __init__(self, kind: str, row_id: str) -> None:
@@ -46,15 +46,15 @@ class CertificateConflict(ContentConflict):
         super().__init__("certificate", row_id)
 
 
-class UnknownReference(StoreError):  # noqa: N818 - names fixed by the API contract
+class UnknownReference(StoreError):
     """A row refers to a problem, plan or certificate that is not stored (HTTP 422)."""
 
 
-class InvalidCursor(StoreError):  # noqa: N818 - names fixed by the API contract
+class InvalidCursor(StoreError):
     """A pagination cursor is malformed or was not produced by this store (HTTP 400)."""
 
 
-class SchemaOutOfDate(StoreError):  # noqa: N818 - names fixed by the API contract
+class SchemaOutOfDate(StoreError):
     """The database schema is missing, behind or ahead of this code (HTTP 503).
 
     ``command`` holds the exact shell command that brings the schema up to date.
@@ -65,11 +65,11 @@ class SchemaOutOfDate(StoreError):  # noqa: N818 - names fixed by the API contra
         super().__init__(message)
 
 
-class StoreUnavailable(StoreError):  # noqa: N818 - names fixed by the API contract
+class StoreUnavailable(StoreError):
     """The database cannot be reached, is locked or timed out (HTTP 503)."""
 
 
-class ArchiveCorrupt(StoreError):  # noqa: N818 - names fixed by the API contract
+class ArchiveCorrupt(StoreError):
     """A stored residual archive no longer matches its recorded SHA-256 (HTTP 500)."""
 
 
