@@ -6,7 +6,7 @@ BIN    := $(VENV)/bin
 PY     := $(BIN)/python
 export OPENBLAS_NUM_THREADS ?= 1
 
-.PHONY: demo test lint typecheck check bench validate fuzz soak clean openapi
+.PHONY: demo test lint typecheck bench validate screenshots clean
 
 $(BIN)/activate:
 	$(PYTHON) -m venv $(VENV)
@@ -36,11 +36,16 @@ test: $(VENV)/.installed-all
 	$(BIN)/mypy
 	$(PY) -m pytest -n 2 -q
 
-openapi: $(VENV)/.installed-all
-	$(PY) -m api_schemas.export
-
 bench: $(VENV)/.installed-all
 	$(PY) -m bench.run_all
+
+# Trained-network validation (cached weights; VALIDATE_ARGS=--retrain needs torch==2.13.0).
+validate: $(VENV)/.installed-all
+	$(PY) -m validation.run $(VALIDATE_ARGS)
+
+# Regenerates docs/screenshots/*.png with the system Chromium.
+screenshots: $(VENV)/.installed-all
+	$(PY) tools/screenshots.py
 
 clean:
 	rm -rf $(VENV) .pytest_cache .mypy_cache .ruff_cache

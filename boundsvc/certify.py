@@ -87,12 +87,25 @@ _DERIVATIONS = _LRU(256)
 _PLANS = _LRU(64, max_weight=4e7)  # weight: stored points (memory)
 
 
-def derive(problem: ProblemSpec) -> Classified:
-    """Classify a problem and derive its constants (cached by content hash)."""
+SYMBOLIC_BUDGET_SECONDS: float | None = None  # set by the service (settings); None: no sandbox
+
+
+def derive(problem: ProblemSpec, budget_seconds: float | None = None) -> Classified:
+    """Classify a problem and derive its constants (cached by content hash).
+
+    With a budget (the service always sets one), a cache miss is first tried in a worker
+    process (``boundsvc.sandbox``): too much symbolic work is refused with
+    ``problem_too_complex`` instead of blocking the service.
+    """
     key = problem_sha256(problem)
     cached = _DERIVATIONS.get(key)
     if cached is not None:
         return cast(Classified, cached)
+    budget = budget_seconds if budget_seconds is not None else SYMBOLIC_BUDGET_SECONDS
+    if budget is not None:
+        from boundsvc.sandbox import sandbox
+
+        sandbox().check(problem.model_dump(mode="json"), budget)
     classified = classify(problem)
     _DERIVATIONS.put(key, classified)
     return classified

@@ -190,7 +190,13 @@ def propagate(
         if forcing
         else np.zeros((grid.size, 0))
     )
-    clip = np.array([k in nonnegative for k in forcing], dtype=bool)
+    # Every source is clipped at 0 after interpolation, signed ones too: a negative (outflow)
+    # contribution is only known at the time nodes, and crediting its interpolant between them
+    # can drive the bound below the true error (seen for networks evaluated far outside their
+    # training window). Clipping can only enlarge the bound. ``nonnegative`` is kept for
+    # callers; it no longer changes the result.
+    del nonnegative
+    clip = np.ones(len(forcing), dtype=bool)
     if grid.mode == "linear":
         interpolants.append(_LinearInterpolant(grid.nodes, stacked) if stacked.shape[1] else None)
     else:
