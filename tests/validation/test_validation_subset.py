@@ -1,0 +1,60 @@
+"""A small subset of ``python -m validation.run`` for ``make test`` (no training, < 20 s).
+
+The cached PINN of the heat problem with inhomogeneous Dirichlet data (exact solution by
+separation of variables, Strauss, PDE: An Introduction, 2nd ed. 2008, ch. 4) is certified
+through the in-process app (build_app, temporary SQLite store, httpx ASGI transport) with the
+residuals of the network at the plan's Gauss-Legendre nodes; the bound must be above the true
+error computed from the exact solution by an independent 200 x 200 Gauss-Legendre rule.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Iterator
+from pathlib import Path
+
+import pytest
+
+from boundsvc.api import build_app
+from boundsvc.settings import Settings
+from boundsvc.store import open_store
+from tests.inprocess import InProcessClient
+from validation.certify import certify_network
+from validation.models import load_model, weights_path
+from validation.problems import heat_dirichlet
+from validation.service import RawApi
+
+
+@pytest.fixture
+def api(tmp_path: Path) -> Iterator[RawApi]:
+    store = open_store(f"sqlite:///{tmp_path}/validation.sqlite3")
+    client = InProcessClient(build_app(Settings(database_url="unused", host="127.0.0.1"), store))
+    yield RawApi(client)
+    client.close()
+    store.dispose()
+
+
+def test_cached_heat_network_bound_above_true_error(api: RawApi) -> None:
+    problem = heat_dirichlet()
+    assert weights_path(problem).exists(), "cached weights are part of the repository"
+    model = load_model(problem)
+    outcome = certify_network(api, problem, model)
+    assert outcome.failures == []
+    assert outcome.status == "valid"
+    assert outcome.certificate["family"] == "linear-advection-diffusion-reaction"
+    assert outcome.true_space_time is not None and outcome.true_final_time is not None
+    assert outcome.bound("l2_space_time") >= outcome.true_space_time  # type: ignore[operator]
+    assert outcome.bound("l2_final_time") >= outcome.true_final_time  # type: ignore[operator]
+    for b, e in zip(
+        outcome.certificate["time_profile"]["l2_error_bound"], outcome.true_profile, strict=True
+    ):
+        assert b is not None and e is not None and b >= e
+    # a trained network, not a perturbed exact solution: the error is small but not zero
+    assert 0.0 < outcome.true_space_time < 1e-2
+
+
+def test_hard_constrained_boundary_residual_is_exactly_zero(api: RawApi) -> None:
+    problem = heat_dirichlet(hard=True)
+    model = load_model(problem)
+    outcome = certify_network(api, problem, model)
+    assert outcome.failures == []
+    assert not any("boundary" in t["name"] and t["value"] for t in outcome.certificate["terms"])

@@ -1,0 +1,285 @@
+"""Certify one network through the service and compare with the true error.
+
+* residuals from the network (exact derivatives by :func:`boundsvc.client.mlp.residual_fields`)
+  at the nodes of the service's Gauss-Legendre plan, never at the training points;
+* regularity of the exact solution from the problem module (documented per value), and the
+  model quantities ``sup_abs_model_*`` from the network on a dense grid plus a 10 % margin
+  (an ASSUMPTION: a grid maximum is not a certified supremum);
+* the true error from the exact solution by an independent fine Gauss-Legendre rule
+  (:func:`scipy.special.roots_legendre`: 200 x 200 nodes in space-time, 400 in x at each time).
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+from scipy.special import roots_legendre
+
+from boundsvc.client.mlp import MLP, residual_fields
+from validation.problems import Problem, Reg
+from validation.service import Api
+
+FloatArray = np.ndarray
+MARGIN = 1.10
+GRID_T, GRID_X = 201, 201
+N_ST, N_X, N_T_ODE = 200, 400, 400
+
+
+@dataclass
+class Outcome:
+    """One certificate and its comparison with the truth."""
+
+    problem: Problem
+    variant: str
+    weights_key: str
+    certificate: dict[str, Any]
+    regularity: dict[str, float | str]
+    notes: dict[str, str]
+    true_space_time: float | None
+    true_final_time: float | None
+    true_profile: list[float | None]
+    meta: dict[str, Any]
+    failures: list[str] = field(default_factory=list)
+
+    @property
+    def status(self) -> str:
+        return str(self.certificate["status"])
+
+    def bound(self, which: str) -> float | None:
+        v = (self.certificate.get("bound") or {}).get(which)
+        return float(v) if isinstance(v, int | float) else None
+
+    def effectivity(self, which: str = "l2_space_time") -> float | None:
+        b = self.bound(which)
+        e = self.true_space_time if which == "l2_space_time" else self.true_final_time
+        return b / e if b is not None and e else None
+
+    @property
+    def ok(self) -> bool:
+        return not self.failures
+
+
+def _grid(problem: Problem, t_limit: float = math.inf) -> tuple[FloatArray, FloatArray | None]:
+    t0, t1 = problem.time
+    t1 = min(t1, t_limit - 1e-3 * (t1 - t0))
+    tt = np.linspace(t0, t1, GRID_T if not problem.is_ode else 2001)
+    if problem.is_ode:
+        return tt, None
+    return tt, np.linspace(*problem.space, GRID_X)
+
+
+def _points(problem: Problem, t: FloatArray, x: FloatArray | None) -> FloatArray:
+    if x is None:
+        return t[:, None]
+    tt, xx = np.meshgrid(t, x, indexing="ij")
+    return np.column_stack([tt.ravel(), xx.ravel()])
+
+
+def model_sups(
+    problem: Problem,
+    model: MLP,
+    regularity: Mapping[str, Reg],
+    *,
+    time_varying: bool = True,
+    t_limit: float = math.inf,
+) -> tuple[dict[str, float | str], dict[str, str]]:
+    """``sup_abs_model_*`` from the network on a dense grid, times 1.1 (an assumption).
+
+    Where the exact solution's bound ``E(t)`` of the same quantity is time-varying (and
+    ``time_varying``), the value sent is the envelope ``E(t) + c`` with the smallest ``c >= 0``
+    such that ``E(t_i) + c >= 1.1 max_x |model field(t_i, x)|`` at every grid time ``t_i``.
+    Past a blow-up time ``t_limit`` the grid stops (no bound is claimed there).
+    """
+    values: dict[str, float | str] = {}
+    notes: dict[str, str] = {}
+    if not problem.model_keys:
+        return values, notes
+    t, x = _grid(problem, t_limit)
+    pts = _points(problem, t, x)
+    names = sorted(set(problem.model_keys.values()))
+    fields = residual_fields(model, pts, problem.axes, names, outputs=problem.outputs)
+    where = f"{len(t)} x {len(x)} grid" if x is not None else f"{len(t)}-point grid"
+    for key, name in problem.model_keys.items():
+        per_t = np.abs(fields[name]).reshape(len(t), -1).max(axis=1)
+        exact = regularity.get(key.replace("model_", ""))
+        if time_varying and exact is not None and exact.time_varying:
+            c = max(0.0, float(np.max(MARGIN * per_t - exact.fn(t))))
+            c = float(f"{c * (1 + 1e-9) + 1e-12:.6e}")
+            values[key] = f"({exact.value}) + {c:.6e}"
+            notes[key] = (
+                f"ASSUMED: 1.1 x max over the {where} of |{name}| of the network at each time, "
+                f"enveloped by the exact bound + {c:.3g}"
+            )
+        else:
+            v = float(f"{MARGIN * float(per_t.max()) * (1 + 1e-9):.6e}")
+            values[key] = v
+            notes[key] = f"ASSUMED: 1.1 x max over the {where} of |{name}| of the network"
+    return values, notes
+
+
+def _component(plan: Mapping[str, Any], name: str) -> dict[str, Any] | None:
+    return next((c for c in plan["components"] if c["name"] == name), None)
+
+
+def _as_model_points(problem: Problem, comp: Mapping[str, Any]) -> FloatArray:
+    pts = np.asarray(comp["points"], dtype=np.float64)
+    axes = list(comp["axes"])
+    cols = []
+    for a in problem.axes:
+        if a in axes:
+            cols.append(pts[:, axes.index(a)])
+        elif a == "t":
+            cols.append(np.full(pts.shape[0], problem.time[0]))
+        else:  # pragma: no cover - every component carries its space axes
+            raise ValueError(f"component {comp['name']} lacks axis {a}")
+    return np.column_stack(cols)
+
+
+def _values(problem: Problem, model: MLP, pts: FloatArray) -> FloatArray:
+    f = residual_fields(model, pts, problem.axes, problem.outputs, outputs=problem.outputs)
+    return np.column_stack([f[o] for o in problem.outputs])
+
+
+def residuals(problem: Problem, model: MLP, plan: Mapping[str, Any]) -> dict[str, FloatArray]:
+    """Residual arrays in the plan's point order (interior, initial, boundary)."""
+    out: dict[str, FloatArray] = {}
+    interior = _as_model_points(problem, _component(plan, "interior") or {})
+    f = residual_fields(model, interior, problem.axes, problem.fields, outputs=problem.outputs)
+    r = np.column_stack(problem.operator(f))
+    out["interior"] = r[:, 0] if r.shape[1] == 1 else r
+    init = _component(plan, "initial")
+    if init is not None:
+        pts = _as_model_points(problem, init)
+        if problem.is_ode:
+            y0 = problem.initial(np.zeros(1))
+            target = np.broadcast_to(y0, (pts.shape[0], len(problem.outputs)))
+        else:
+            target = problem.initial(pts[:, 1])[:, None]
+        r0 = _values(problem, model, pts) - target
+        out["initial"] = r0[:, 0] if r0.shape[1] == 1 else r0
+    bnd = _component(plan, "boundary")
+    if bnd is not None:
+        pts = _as_model_points(problem, bnd)
+        rb = _values(problem, model, pts)[:, 0] - problem.boundary(pts[:, 0], pts[:, 1])
+        if problem.lift is not None:
+            # hard constraint: u_model = g on the faces by construction; the two evaluations of
+            # the data (lift vs closed form) differ by rounding only -- check, then send 0.0
+            if float(np.max(np.abs(rb))) > 1e-12:
+                raise AssertionError(f"{problem.key}: hard BC violated by {np.max(np.abs(rb))}")
+            rb = np.zeros_like(rb)
+        out["boundary"] = rb
+    return out
+
+
+def _gl(n: int, lo: float, hi: float) -> tuple[FloatArray, FloatArray]:
+    z, w = roots_legendre(n)
+    return 0.5 * (hi - lo) * (z + 1) + lo, 0.5 * (hi - lo) * w
+
+
+def true_errors(
+    problem: Problem, model: MLP, profile_t: Sequence[float], t_limit: float = math.inf
+) -> tuple[float | None, float | None, list[float | None]]:
+    """True errors in the certificate's norms (space-time, final time, at each profile time).
+
+    ``t_limit``: the exact solution exists only before it (blow-up); later times give None.
+    """
+    t0, t1 = problem.time
+
+    def err(pts: FloatArray) -> FloatArray:
+        if problem.is_ode:
+            exact = problem.exact(pts[:, 0])
+        else:
+            exact = problem.exact(pts[:, 0], pts[:, 1])[:, None]
+        return _values(problem, model, pts) - exact
+
+    def at(tk: float) -> float:
+        if problem.is_ode:
+            return float(np.linalg.norm(err(np.array([[tk]]))[0]))
+        xs, wx = _gl(N_X, *problem.space)
+        e = err(np.column_stack([np.full_like(xs, tk), xs]))[:, 0]
+        return float(math.sqrt(np.dot(wx, e * e)))
+
+    profile = [at(float(tk)) if tk < t_limit else None for tk in profile_t]
+    if t1 >= t_limit:
+        return None, None, profile
+    if problem.is_ode:
+        ts, wt = _gl(N_T_ODE, t0, t1)
+        e2 = np.sum(err(ts[:, None]) ** 2, axis=1)
+        st = float(math.sqrt(np.dot(wt, e2)))
+    else:
+        ts, wt = _gl(N_ST, t0, t1)
+        xs, wx = _gl(N_ST, *problem.space)
+        pts = _points(problem, ts, xs)
+        e2 = (err(pts)[:, 0] ** 2).reshape(N_ST, N_ST)
+        st = float(math.sqrt(np.einsum("i,j,ij->", wt, wx, e2)))
+    return st, at(t1), profile
+
+
+def certify_network(
+    api: Api,
+    problem: Problem,
+    model: MLP,
+    *,
+    variant: str = "default",
+    weights_key: str | None = None,
+    t_limit: float = math.inf,
+    expect_valid: bool = True,
+) -> Outcome:
+    """Problem -> plan -> certificate for ``model``, then the comparison with the truth."""
+    info = api.problem(problem.problem)
+    failures: list[str] = []
+    if info["family"] != problem.family:
+        failures.append(f"classified as {info['family']}, expected {problem.family}")
+    plan = api.plan(info["problem_id"], problem.points)
+    reg = problem.regularity if variant == "default" else problem.variants[variant]
+    sups, notes = model_sups(
+        problem, model, reg, time_varying=variant != "constant sups", t_limit=t_limit
+    )
+    regularity: dict[str, float | str] = {k: r.value for k, r in reg.items()} | sups
+    notes = {k: r.note for k, r in reg.items()} | notes
+    res = residuals(problem, model, plan)
+    wkey = weights_key or problem.key
+    cert = api.certify(
+        info["problem_id"],
+        plan["plan_id"],
+        regularity,
+        res,
+        {"name": f"validation/{wkey}", "version": "1", "metadata": {"variant": variant}},
+    )
+    st, ft, prof = true_errors(problem, model, cert["time_profile"]["t"], t_limit)
+    out = Outcome(
+        problem, variant, wkey, cert, regularity, notes, st, ft, prof, dict(model.meta), failures
+    )
+    status = cert["status"]
+    if status == "invalid-hypotheses":
+        failures.append(f"invalid-hypotheses: {cert.get('warnings')}")
+    if expect_valid and status != "valid":
+        failures.append(f"status {status}, expected valid")
+    for which, truth in (("l2_space_time", st), ("l2_final_time", ft)):
+        b = out.bound(which)
+        if b is not None and truth is not None and b < truth:
+            failures.append(f"BOUND BELOW TRUE ERROR: {which} bound {b:.6g} < true {truth:.6g}")
+    for tk, bk, ek in zip(
+        cert["time_profile"]["t"], cert["time_profile"]["l2_error_bound"], prof, strict=True
+    ):
+        if bk is not None and ek is not None and bk < ek:
+            failures.append(f"BOUND BELOW TRUE ERROR at t = {tk:.6g}: {bk:.6g} < {ek:.6g}")
+    return out
+
+
+def exact_norm(problem: Problem, t_limit: float = math.inf) -> float | None:
+    """``||u||`` of the exact solution over space-time (same quadrature as the true error)."""
+    t0, t1 = problem.time
+    if t1 >= t_limit:
+        return None
+    ts, wt = _gl(N_ST if not problem.is_ode else N_T_ODE, t0, t1)
+    if problem.is_ode:
+        return float(math.sqrt(np.dot(wt, np.sum(problem.exact(ts) ** 2, axis=1))))
+    xs, wx = _gl(N_ST, *problem.space)
+    tt, xx = np.meshgrid(ts, xs, indexing="ij")
+    u2 = problem.exact(tt, xx) ** 2
+    return float(math.sqrt(np.einsum("i,j,ij->", wt, wx, u2)))

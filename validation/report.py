@@ -1,0 +1,520 @@
+"""Write ``docs/validation.md`` and its plots (``docs/validation/*.png``) from the results."""
+
+from __future__ import annotations
+
+import math
+import statistics
+from collections import defaultdict
+from collections.abc import Sequence
+from pathlib import Path
+from typing import TYPE_CHECKING, Any
+
+import matplotlib
+
+matplotlib.use("Agg")
+import matplotlib.pyplot as plt
+
+from validation.certify import Outcome
+
+if TYPE_CHECKING:
+    from validation.run import Results, Sweep
+
+DOCS = Path(__file__).resolve().parent.parent / "docs"
+PLOTS = DOCS / "validation"
+TARGETS = {
+    "linear-advection-diffusion-reaction": (10.0, "linear parabolic"),
+    "semilinear-parabolic": (100.0, "nonlinear"),
+    "scalar-conservation-law": (100.0, "nonlinear"),
+    "ode-system": (100.0, "nonlinear ODE systems (the oscillator is linear)"),
+}
+
+
+def _f(v: float | None, spec: str = ".3g") -> str:
+    if v is None or (isinstance(v, float) and not math.isfinite(v)):
+        return "n/a"
+    return format(v, spec)
+
+
+def _terms(o: Outcome) -> list[dict[str, Any]]:
+    return list(o.certificate.get("terms") or [])
+
+
+def dominant(o: Outcome) -> str:
+    """The term with the largest share of the squared final-time bound."""
+    terms = [t for t in _terms(o) if t.get("share_final_time") is not None]
+    if not terms:
+        return "n/a"
+    t = max(terms, key=lambda t: t["share_final_time"])
+    return f"{t['name']} ({100 * t['share_final_time']:.0f} %)"
+
+
+def _share(o: Outcome, word: str) -> float:
+    return sum(t.get("share_final_time") or 0.0 for t in _terms(o) if word in t["name"])
+
+
+# -- plots ---------------------------------------------------------------------------
+
+
+def sweep_plot(sweep: Sweep, path: Path) -> None:
+    fig, ax = plt.subplots(figsize=(6.4, 4.2), dpi=110)
+    x = sweep.values
+    for which, true_attr, style, label in (
+        ("l2_space_time", "true_space_time", "o-", "space-time"),
+        ("l2_final_time", "true_final_time", "s-", "final time"),
+    ):
+        ax.plot(x, [o.bound(which) for o in sweep.outcomes], style, label=f"bound, {label}")
+        ax.plot(
+            x,
+            [getattr(o, true_attr) for o in sweep.outcomes],
+            style.replace("-", "--"),
+            mfc="none",
+            label=f"true error, {label}",
+        )
+    if sweep.extra:
+        ax.plot(
+            x,
+            [o.bound("l2_space_time") for o in sweep.extra],
+            "^:",
+            label="bound, space-time, constant sups",
+        )
+    ax.set_yscale("log")
+    if sweep.parameter in ("width", "adam_steps"):
+        ax.set_xscale("log")
+    ax.set_xlabel(sweep.parameter)
+    ax.set_ylabel("L2 error")
+    ax.set_title(sweep.name, fontsize=9)
+    ax.grid(True, which="both", alpha=0.3)
+    ax.legend(fontsize=7)
+    fig.tight_layout()
+    fig.savefig(path)
+    plt.close(fig)
+
+
+def effectivity_plot(results: Results, path: Path) -> None:
+    rows = [(o.problem.key, o.effectivity(), o.effectivity("l2_final_time")) for o in results.suite]
+    rows += [
+        (h.problem.key, h.effectivity(), h.effectivity("l2_final_time")) for _, h in results.hard
+    ]
+    fig, ax = plt.subplots(figsize=(7.5, 4.2), dpi=110)
+    idx = range(len(rows))
+    ax.bar([i - 0.2 for i in idx], [r[1] or 0 for r in rows], 0.4, label="space-time")
+    ax.bar([i + 0.2 for i in idx], [r[2] or 0 for r in rows], 0.4, label="final time")
+    ax.axhline(10, color="g", ls="--", lw=0.8, label="target 10 (linear parabolic)")
+    ax.axhline(100, color="r", ls="--", lw=0.8, label="target 100 (nonlinear)")
+    ax.axhline(1, color="k", lw=0.8)
+    ax.set_yscale("log")
+    ax.set_xticks(list(idx), [r[0] for r in rows], rotation=60, ha="right", fontsize=7)
+    ax.set_ylabel("effectivity = bound / true error")
+    ax.legend(fontsize=7)
+    ax.grid(True, axis="y", which="both", alpha=0.3)
+    fig.tight_layout()
+    fig.savefig(path)
+    plt.close(fig)
+
+
+# -- markdown ---------------------------------------------------------------------------
+
+
+def _table(header: Sequence[str], rows: Sequence[Sequence[str]]) -> list[str]:
+    out = ["| " + " | ".join(header) + " |", "|" + "---|" * len(header)]
+    out += ["| " + " | ".join(r) + " |" for r in rows]
+    return out
+
+
+def _row(o: Outcome) -> list[str]:
+    return [
+        f"`{o.weights_key}`",
+        _f(o.true_space_time),
+        _f(o.bound("l2_space_time")),
+        _f(o.effectivity(), ".1f"),
+        _f(o.true_final_time),
+        _f(o.bound("l2_final_time")),
+        _f(o.effectivity("l2_final_time"), ".1f"),
+        o.status,
+        dominant(o),
+    ]
+
+
+MAIN_HEADER = [
+    "network",
+    "true ST",
+    "bound ST",
+    "eff ST",
+    "true T",
+    "bound T",
+    "eff T",
+    "status",
+    "dominant term (share of bound^2 at T)",
+]
+
+
+def _detail(o: Outcome) -> list[str]:
+    p, c, m = o.problem, o.certificate, o.meta
+    lines = [f"### `{p.key}`: {p.title}", ""]
+    lines.append(f"- family `{c['family']}`; closed form: {p.source}")
+    lines.append(
+        f"- problem: `{p.problem['equation']}`, time {p.problem['time']}"
+        + (f", x in {p.problem['space']['x']}" if "space" in p.problem else "")
+        + (f", parameters {p.problem.get('parameters')}" if p.problem.get("parameters") else "")
+    )
+    arch = "-".join(str(v) for v in m.get("architecture", []))
+    lines.append(
+        f"- network {arch} tanh, float64, seed {m.get('seed')}, Adam {m.get('adam_steps')} + "
+        f"L-BFGS {m.get('lbfgs_max_iter')} (max iter), {m.get('train_seconds')} s; final "
+        "losses "
+        + ", ".join(f"{k} {v:.2e}" for k, v in (m.get("final_losses") or {}).items())
+        + ("; hard BC: " + str(m.get("hard_bc_lift")) if m.get("hard_bc") else "")
+    )
+    plan = ", ".join(f"{k} {v}" for k, v in p.points.items())
+    lines.append(
+        f"- plan: Gauss-Legendre, {plan} nodes; certificate `{c['id']}`, "
+        f"overall rigor `{c.get('rigor')}`"
+    )
+    lines.append("- regularity sent:")
+    for k, v in o.regularity.items():
+        lines.append(f"  - `{k}` = `{v}`: {o.notes.get(k, '')}")
+    lines.append("- terms (contribution to the squared final-time bound):")
+    for t in _terms(o):
+        lines.append(
+            f"  - {t['name']}: {_f(t['value'])} (share "
+            f"{_f(100 * (t.get('share_final_time') or 0), '.1f')} % at T, "
+            f"{_f(100 * (t.get('share_space_time') or 0), '.1f')} % space-time), "
+            f"rigor `{t['rigor']}`"
+        )
+    consts = [f"`{k['symbol']}` [{k.get('rigor')}]" for k in c.get("constants") or []]
+    if consts:
+        lines.append("- constants: " + ", ".join(consts))
+    for w in c.get("warnings") or []:
+        lines.append(f"- warning: {w}")
+    lines.append("")
+    return lines
+
+
+def family_medians(results: Results) -> list[list[str]]:
+    by: dict[str, list[Outcome]] = defaultdict(list)
+    for o in results.suite:
+        by[o.problem.family].append(o)
+    rows = []
+    for fam, outs in by.items():
+        st = [e for e in (o.effectivity() for o in outs) if e is not None]
+        ft = [e for e in (o.effectivity("l2_final_time") for o in outs) if e is not None]
+        target, kind = TARGETS.get(fam, (100.0, "nonlinear"))
+        med = statistics.median(st) if st else math.nan
+        rows.append(
+            [
+                f"`{fam}`",
+                str(len(outs)),
+                _f(med, ".1f"),
+                _f(statistics.median(ft) if ft else None, ".1f"),
+                f"{target:g} ({kind})",
+                "met" if med <= target else "**missed**",
+            ]
+        )
+    return rows
+
+
+def _sweep_section(s: Sweep, png: str) -> list[str]:
+    lines = [f"### {s.name}", "", f"![{s.name}](validation/{png})", ""]
+    header = [
+        s.parameter,
+        "true ST",
+        "bound ST",
+        "eff ST",
+        "true T",
+        "bound T",
+        "status",
+        "bound ST / norm(u)",
+    ]
+    if s.extra:
+        header += ["bound ST, constant sups", "eff, constant sups"]
+    rows = []
+    for i, (v, o) in enumerate(zip(s.values, s.outcomes, strict=True)):
+        norm = s.norms[i] if i < len(s.norms) else None
+        b = o.bound("l2_space_time")
+        row = [
+            f"{v:g}",
+            _f(o.true_space_time),
+            _f(b),
+            _f(o.effectivity(), ".1f"),
+            _f(o.true_final_time),
+            _f(o.bound("l2_final_time")),
+            o.status,
+            _f(b / norm if b and norm else None),
+        ]
+        if s.extra:
+            e = s.extra[i]
+            flag = "" if e.status == "valid" else f" ({e.status})"
+            row += [_f(e.bound("l2_space_time")) + flag, _f(e.effectivity(), ".3g")]
+        rows.append(row)
+    lines += _table(header, rows)
+    lines.append("")
+    c = s.correlation or {}
+    lines.append(
+        f"Correlation of bound and true error (space-time, n = {c.get('n')}): Pearson r = "
+        f"{_f(c.get('pearson_r'))} (95 % CI {_ci(c.get('pearson_ci'))}), Spearman rho = "
+        f"{_f(c.get('spearman_rho'))} (CI {_ci(c.get('spearman_ci'))}); computed by "
+        f"{s.correlation_source}"
+        + (f", study `{c['study_id']}`" if c.get("study_id") else "")
+        + (
+            f"; median effectivity {_f(c.get('median_effectivity'), '.1f')}"
+            if c.get("median_effectivity")
+            else ""
+        )
+        + "."
+    )
+    trend = c.get("trend") or {}
+    if trend:
+        lines.append(
+            f"Trend along `{s.parameter}`: bound {trend.get('bound')}, true error "
+            f"{trend.get('measured_error')}."
+        )
+    for t_end, o in s.beyond:
+        if isinstance(o, Outcome):
+            c2 = o.certificate
+            last = [b for b in c2["time_profile"]["l2_error_bound"] if b is not None]
+            lines.append(
+                f"- Beyond the blow-up, T = {t_end:g} (network of the last sweep point): status "
+                f"`{c2['status']}`, `vacuous_from` = {_f(c2.get('vacuous_from'), '.6g')}, last "
+                f"finite profile bound {_f(last[-1] if last else None)}; warnings: "
+                + "; ".join(c2.get("warnings") or [])
+                + (
+                    "; **profile check FAILED**: " + "; ".join(o.failures)
+                    if o.failures
+                    else "; every finite profile bound is above the true error"
+                )
+            )
+        else:
+            lines.append(f"- Beyond the blow-up, T = {t_end:g}: {o[:400]}")
+    lines.append("")
+    return lines
+
+
+def _ci(ci: Any) -> str:
+    if not ci:
+        return "n/a"
+    return f"[{ci[0]:.2f}, {ci[1]:.2f}]"
+
+
+def _version(results: Results) -> str:
+    for o in results.suite:
+        return str(o.certificate["provenance"].get("service_version"))
+    return "?"
+
+
+def write_report(results: Results) -> Path:
+    PLOTS.mkdir(parents=True, exist_ok=True)
+    effectivity_plot(results, PLOTS / "effectivity.png")
+    pngs = []
+    for i, s in enumerate(results.sweeps):
+        name = (
+            [
+                "sweep_width.png",
+                "sweep_steps.png",
+                "sweep_burgers_blowup.png",
+                "sweep_riccati_blowup.png",
+            ][i]
+            if i < 4
+            else f"sweep_{i}.png"
+        )
+        sweep_plot(s, PLOTS / name)
+        pngs.append(name)
+    failures = results.failures()
+    L: list[str] = [
+        "# Validation on trained networks",
+        "",
+        "<!-- generated by `python -m validation.run`; do not edit by hand -->",
+        "",
+        f"Generated by `python -m validation.run` against {results.service}, service version "
+        f"`{_version(results)}`. {len(results.all())} certificates. "
+        + (
+            "**Every bound is above the true error.**"
+            if not failures
+            else "**FAILED: some bounds are below the true error or hypotheses were violated (see "
+            "the end of this page).**"
+        ),
+        "",
+        "## Method",
+        "",
+        "- Each problem has a closed-form solution from the literature (named per problem). A "
+        "small tanh PINN (float64, seeded) is trained on the CPU with PyTorch (Adam, then "
+        "L-BFGS; `validation/train.py`) on uniformly random collocation points and cached in "
+        "`validation/weights/*.npz` (the `boundsvc.client.mlp.MLP` format).",
+        "- The network is certified by a running service (`python -m boundsvc.cli serve`, "
+        "loopback, temporary SQLite): `POST /v1/problems`, a Gauss-Legendre `POST /v1/plans`, "
+        "`POST /v1/certificates`. The residuals are the network's, with exact derivatives "
+        "(`boundsvc.client.mlp.residual_fields`), at the plan's nodes, not at the training "
+        "points.",
+        "- Regularity of the exact solution: derived from the closed form, documented per "
+        "value below (a number, or an expression in `t` where the solution allows it).",
+        "- **Assumption:** `sup_abs_model_*` are the network's maxima on a dense grid "
+        "(201 x 201 in space-time, 2001 points in t for ODEs) times 1.1. Where the exact "
+        "solution's bound of the same quantity is an expression `E(t)`, the value sent is "
+        "`E(t) + c` with the smallest `c` making it dominate 1.1 x the sampled model maximum "
+        "at every grid time. A grid maximum is not a certified supremum.",
+        "- True error: `u_model - u` from the exact solution with an independent "
+        "Gauss-Legendre rule (`scipy.special.roots_legendre`): 200 x 200 nodes over "
+        "space-time, 400 nodes in x at the final time and at every time of the certificate's "
+        "profile (ODEs: 400 nodes in t). The suite fails (non-zero exit) if any bound "
+        "(space-time, final time, or any profile time) is below the true error, if a "
+        "certificate is `invalid-hypotheses`, or if a suite problem is not `valid`.",
+        "- Effectivity = bound / true error (ST = space-time L2, T = L2 at the final time).",
+        "",
+        "## Results per problem",
+        "",
+        "![effectivities](validation/effectivity.png)",
+        "",
+    ]
+    L += _table(MAIN_HEADER, [_row(o) for o in results.suite])
+    L += ["", "### Median effectivity per family (space-time; final time alongside)", ""]
+    L += _table(
+        ["family", "problems", "median eff ST", "median eff T", "target", ""],
+        family_medians(results),
+    )
+    L += ["", _findings(results), ""]
+    L += [
+        "## Tightening analysis",
+        "",
+        "Same networks, looser regularity (what the service offers beyond the minimum):",
+        "",
+    ]
+    base = {o.problem.key: o for o in results.suite}
+    rows = []
+    for v in results.variants:
+        b = base[v.problem.key]
+        rows.append(
+            [
+                f"`{v.problem.key}`",
+                v.variant,
+                _f(v.effectivity(), ".3g"),
+                _f(b.effectivity(), ".3g"),
+                _f(v.effectivity("l2_final_time"), ".3g"),
+                _f(b.effectivity("l2_final_time"), ".3g"),
+                _gain(v, b),
+            ]
+        )
+    for s in results.sweeps:
+        for v, b in zip(s.extra, s.outcomes if s.extra else [], strict=True):
+            rows.append(
+                [
+                    f"`{v.weights_key}`",
+                    v.variant,
+                    _f(v.effectivity(), ".3g"),
+                    _f(b.effectivity(), ".3g"),
+                    _f(v.effectivity("l2_final_time"), ".3g"),
+                    _f(b.effectivity("l2_final_time"), ".3g"),
+                    _gain(v, b),
+                ]
+            )
+    L += _table(
+        [
+            "network",
+            "looser variant",
+            "eff ST looser",
+            "eff ST default",
+            "eff T looser",
+            "eff T default",
+            "gain ST",
+        ],
+        rows,
+    )
+    L += [
+        "",
+        "The default of each problem uses the tightest values the service accepts: "
+        "time-varying expressions where the exact solution allows, and for Burgers the "
+        "one-sided `sup_neg_u_x` next to `sup_abs_u_x`.",
+        "",
+    ]
+    L += [
+        "Hard-constrained boundary conditions (a separately trained network with the output "
+        "transform `u = g(t, x) + (x - xL)(xR - x)/L^2 N(t, x)`, `g` interpolating the "
+        "Dirichlet data, so the boundary residual is exactly 0.0; the service then drops the "
+        "boundary term and adds the Friedrichs decay, see the certificate warnings):",
+        "",
+    ]
+    rows = []
+    for s_, h in results.hard:
+        rows.append(
+            [
+                f"`{s_.problem.key}` -> `{h.problem.key}`",
+                _f(s_.true_space_time),
+                _f(h.true_space_time),
+                _f(s_.effectivity(), ".3g"),
+                _f(h.effectivity(), ".3g"),
+                _f(s_.effectivity("l2_final_time"), ".3g"),
+                _f(h.effectivity("l2_final_time"), ".3g"),
+                f"{100 * _share(s_, 'boundary'):.0f} % -> {100 * _share(h, 'boundary'):.0f} %",
+            ]
+        )
+    L += _table(
+        [
+            "soft -> hard",
+            "true ST soft",
+            "true ST hard",
+            "eff ST soft",
+            "eff ST hard",
+            "eff T soft",
+            "eff T hard",
+            "boundary share of bound^2",
+        ],
+        rows,
+    )
+    L += ["", LIFTING, ""]
+    L += ["## Sweeps", ""]
+    for s, png in zip(results.sweeps, pngs, strict=True):
+        L += _sweep_section(s, png)
+    L += ["## Per-problem details (regularity, terms and their rigor)", ""]
+    for o in [*results.suite, *(h for _, h in results.hard)]:
+        L += _detail(o)
+    if failures:
+        L += ["## FAILURES", ""] + [f"- {f}" for f in failures] + [""]
+    path = DOCS / "validation.md"
+    path.write_text("\n".join(L) + "\n", encoding="utf-8")
+    return path
+
+
+def _gain(v: Outcome, b: Outcome) -> str:
+    bv, bb = v.bound("l2_space_time"), b.bound("l2_space_time")
+    if bv is None or bb is None:
+        return f"{v.status} -> {b.status}"
+    return f"x {bv / bb:.3g}"
+
+
+def _findings(results: Results) -> str:
+    """Generated statements about what dominates the bounds."""
+    lines = ["**What dominates.**"]
+    for o in results.suite:
+        lines.append(
+            f"`{o.problem.key}`: {dominant(o)}; boundary terms {100 * _share(o, 'boundary'):.0f} "
+            f"% of the squared final-time bound."
+        )
+    lines.append(
+        "Where a Dirichlet boundary term dominates, it enters the squared bound linearly in the "
+        "boundary residual (`2 k int |R_b| (G_u + G_model)`), so the bound scales like the "
+        "square root of the boundary residual while the true error scales like the residual "
+        "itself: the effectivity grows as training improves the boundary fit. The "
+        "hard-constrained twins remove this term."
+    )
+    return " ".join(lines)
+
+
+LIFTING = """**What a boundary-residual lifting in the service would need** (theory-notes 3.1; not
+implemented, the service is unchanged). With `e = u_model - u` and the boundary residual `R_b`
+(the trace of `e`), pick a smooth extension `B R_b` into the domain -- in 1D the linear
+interpolant `(B R_b)(t, x) = R_b(t, xL) (xR - x)/L + R_b(t, xR) (x - xL)/L`. Then
+`v = e - B R_b` vanishes on the boundary and solves the error equation with homogeneous data
+and forcing `R - L(B R_b)`, initial value `R_0 - (B R_b)(t0, .)`; the energy estimate for `v`
+has no boundary term and keeps the dissipation (Friedrichs decay `2 k / C_F^2`,
+`C_F = L/pi`), and `||e|| <= ||v|| + ||B R_b||`. The bound becomes linear in `R_b` instead of
+its square root. The service would need: (1) `R_b` as a function of time on each face (it has it
+at the plan's boundary time nodes, which coincide with the interior time nodes of a tensor
+Gauss plan); (2) its time derivative `d/dt R_b` -- a new residual component
+(`boundary_t = u_model_t - g_t` at the boundary nodes, exact from the client's network) or a
+`heuristic` differentiation of the time interpolant; (3) `L(B R_b) = d_t B R_b + a d_x B R_b
+- k d_xx B R_b + c B R_b` at the interior nodes (`d_xx B R_b = 0` for the linear lifting), which
+it can form itself from (1)-(2) and the plan geometry, replacing `||R||^2` by
+`||R - L(B R_b)||^2` at each time node; (4) the additive term `||B R_b(t)||` (computable) and
+the modified initial residual; (5) for nonlinear families (Burgers, semilinear) the
+nonlinearity evaluated at `v + B R_b` gives cross terms bounded with `sup |u|`,
+`sup |u_model|` and `sup |B R_b|`, i.e. the rate gains `sup |d_x B R_b|` and the rigor stays
+as for the other residual terms. No new regularity of the exact solution is needed for the
+linear family: the gradient bounds `sup_abs_u_x`, `sup_abs_model_u_x` would no longer enter."""

@@ -1,0 +1,256 @@
+"""Train the validation PINNs (PyTorch, float64, CPU, seeded) and cache them as MLP ``.npz``.
+
+The loss is the physics-informed one of Raissi, Perdikaris and Karniadakis (J. Comput. Phys.
+378 (2019) 686-707): the mean squared residual of the equations at uniformly random
+collocation points plus ``w_data`` times the mean squared initial and boundary mismatch (the
+boundary term is absent for hard-constrained outputs and ODEs). Adam with a step learning-rate
+schedule, then L-BFGS with a strong-Wolfe line search, as in ``demo/train_heated_strip.py``.
+The training points are drawn at random and are NOT the service's Gauss-Legendre nodes.
+
+    .venv/bin/python -m validation.train                 # train the missing networks
+    .venv/bin/python -m validation.train --force KEY ... # retrain these
+"""
+
+from __future__ import annotations
+
+import argparse
+import itertools
+import time
+from typing import Any
+
+import numpy as np
+import torch
+from torch import nn
+
+from boundsvc.client.mlp import MLP
+from validation.models import WEIGHTS, weights_path
+from validation.problems import Problem, all_trainable
+
+
+class TorchLib:
+    """The lift namespace for torch tensors."""
+
+    tanh = staticmethod(torch.tanh)
+    exp = staticmethod(torch.exp)
+    sin = staticmethod(torch.sin)
+    cos = staticmethod(torch.cos)
+
+
+def _scaling(problem: Problem) -> tuple[np.ndarray, np.ndarray]:
+    t0, t1 = problem.time
+    lo = [t0]
+    hi = [t1]
+    if not problem.is_ode:
+        xl, xr = problem.space
+        lo.append(xl)
+        hi.append(xr)
+    a, b = np.array(lo), np.array(hi)
+    return (a + b) / 2, (b - a) / 2
+
+
+class Net(nn.Module):
+    """``tanh`` MLP with input scaling onto ``[-1, 1]^d``, output scale, optional lift."""
+
+    def __init__(self, problem: Problem) -> None:
+        super().__init__()
+        cfg = problem.train
+        d, m = len(problem.axes), len(problem.outputs)
+        widths = (d, *cfg.hidden, m)
+        self.layers = nn.ModuleList(
+            nn.Linear(a, b, dtype=torch.float64) for a, b in itertools.pairwise(widths)
+        )
+        shift, scale = _scaling(problem)
+        self.register_buffer("shift", torch.tensor(shift))
+        self.register_buffer("scale", torch.tensor(scale))
+        self.out_scale = float(cfg.out_scale)
+        self.problem = problem
+        for layer in self.layers:
+            nn.init.xavier_normal_(layer.weight)
+            nn.init.zeros_(layer.bias)
+
+    def forward(self, pts: torch.Tensor) -> torch.Tensor:
+        z = (pts - self.shift) / self.scale
+        for layer in self.layers[:-1]:
+            z = torch.tanh(layer(z))
+        u = self.out_scale * self.layers[-1](z)
+        lift = self.problem.lift
+        if lift is not None:
+            xl, xr = self.problem.space
+            t, x = pts[:, 0:1], pts[:, 1:2]
+            u = lift.g(t, x, TorchLib) + (x - xl) * (xr - x) / (xr - xl) ** 2 * u
+        return u
+
+
+def torch_fields(net: Net, pts: torch.Tensor) -> dict[str, torch.Tensor]:
+    """The fields the problem's operator needs, by autograd."""
+    p = net.problem
+    pts = pts.detach().requires_grad_(True)
+    out = net(pts)
+    fields: dict[str, torch.Tensor] = {}
+    for j, name in enumerate(p.outputs):
+        v = out[:, j]
+        fields[name] = v
+        if not any(f.startswith(name + "_") for f in p.fields):
+            continue
+        (g,) = torch.autograd.grad(v.sum(), pts, create_graph=True)
+        fields[name + "_t"] = g[:, 0]
+        if not p.is_ode:
+            fields[name + "_x"] = g[:, 1]
+            if name + "_xx" in p.fields:
+                (g2,) = torch.autograd.grad(g[:, 1].sum(), pts, create_graph=True)
+                fields[name + "_xx"] = g2[:, 1]
+    return fields
+
+
+def sample(problem: Problem, rng: np.random.Generator) -> dict[str, torch.Tensor]:
+    """Uniformly random collocation, initial and boundary points with their target values."""
+    cfg = problem.train
+    t0, t1 = problem.time
+    out: dict[str, torch.Tensor] = {}
+    if problem.is_ode:
+        out["col"] = torch.tensor(rng.uniform(t0, t1, (cfg.n_col, 1)))
+        out["ic"] = torch.tensor([[t0]])
+        out["ic_val"] = torch.tensor(problem.initial(np.zeros(1))[None, :])
+        return out
+    xl, xr = problem.space
+    out["col"] = torch.tensor(
+        np.column_stack([rng.uniform(t0, t1, cfg.n_col), rng.uniform(xl, xr, cfg.n_col)])
+    )
+    x_ic = rng.uniform(xl, xr, cfg.n_ic)
+    out["ic"] = torch.tensor(np.column_stack([np.full_like(x_ic, t0), x_ic]))
+    out["ic_val"] = torch.tensor(problem.initial(x_ic))[:, None]
+    if problem.lift is None:
+        t_bc = rng.uniform(t0, t1, cfg.n_bc)
+        bc = np.concatenate(
+            [
+                np.column_stack([t_bc, np.full_like(t_bc, xl)]),
+                np.column_stack([t_bc, np.full_like(t_bc, xr)]),
+            ]
+        )
+        out["bc"] = torch.tensor(bc)
+        out["bc_val"] = torch.tensor(problem.boundary(bc[:, 0], bc[:, 1]))[:, None]
+    return out
+
+
+def losses(net: Net, pts: dict[str, torch.Tensor]) -> dict[str, torch.Tensor]:
+    res = net.problem.operator(torch_fields(net, pts["col"]))
+    pde = sum(r.pow(2).mean() for r in res)
+    ic = (net(pts["ic"]) - pts["ic_val"]).pow(2).mean()
+    out = {"pde": pde, "ic": ic}
+    data = ic
+    if "bc" in pts:
+        out["bc"] = (net(pts["bc"]) - pts["bc_val"]).pow(2).mean()
+        data = data + out["bc"]
+    out["total"] = pde + net.problem.train.w_data * data
+    return out  # type: ignore[return-value]
+
+
+def to_mlp(net: Net, meta: dict[str, Any]) -> MLP:
+    ws = [layer.weight.detach().numpy().copy() for layer in net.layers]
+    bs = [layer.bias.detach().numpy().copy() for layer in net.layers]
+    shift, scale = _scaling(net.problem)
+    m = len(net.problem.outputs)
+    out = None
+    if net.out_scale != 1.0:
+        out = (np.zeros(m), np.full(m, net.out_scale))
+    return MLP.from_arrays(
+        ws, bs, "tanh", input_scaling=(shift, scale), output_transform=out, meta=meta
+    )
+
+
+def train(problem: Problem, *, verbose: bool = True) -> MLP:
+    """Train one network and write ``validation/weights/<key>.npz``."""
+    cfg = problem.train
+    torch.manual_seed(cfg.seed)
+    torch.set_num_threads(1)
+    rng = np.random.default_rng(cfg.seed)
+    net = Net(problem)
+    pts = sample(problem, rng)
+    start = time.perf_counter()
+    opt = torch.optim.Adam(net.parameters(), lr=cfg.lr)
+    sched = torch.optim.lr_scheduler.StepLR(opt, step_size=max(1, cfg.adam_steps // 3), gamma=0.3)
+    for _ in range(cfg.adam_steps):
+        opt.zero_grad()
+        losses(net, pts)["total"].backward()
+        opt.step()
+        sched.step()
+    evals = 0
+    if cfg.lbfgs_iters > 0:
+        lbfgs = torch.optim.LBFGS(
+            net.parameters(),
+            lr=1.0,
+            max_iter=cfg.lbfgs_iters,
+            max_eval=int(1.25 * cfg.lbfgs_iters),
+            history_size=50,
+            tolerance_grad=1e-12,
+            tolerance_change=1e-15,
+            line_search_fn="strong_wolfe",
+        )
+
+        def closure() -> torch.Tensor:
+            nonlocal evals
+            evals += 1
+            lbfgs.zero_grad()
+            total = losses(net, pts)["total"]
+            total.backward()
+            return total
+
+        lbfgs.step(closure)
+    final = {k: float(v.item()) for k, v in losses(net, pts).items()}
+    elapsed = time.perf_counter() - start
+    meta: dict[str, Any] = {
+        "problem": problem.key,
+        "title": problem.title,
+        "inputs": list(problem.axes),
+        "outputs": list(problem.outputs),
+        "architecture": [len(problem.axes), *cfg.hidden, len(problem.outputs)],
+        "activation": "tanh",
+        "seed": cfg.seed,
+        "adam_steps": cfg.adam_steps,
+        "adam_lr": cfg.lr,
+        "lbfgs_max_iter": cfg.lbfgs_iters,
+        "lbfgs_evaluations": evals,
+        "n_collocation": cfg.n_col,
+        "data_weight": cfg.w_data,
+        "hard_bc": problem.lift is not None,
+        "hard_bc_lift": problem.lift.description if problem.lift else None,
+        "final_losses": final,
+        "train_seconds": round(elapsed, 1),
+        "torch_version": torch.__version__,
+    }
+    model = to_mlp(net, meta)
+    WEIGHTS.mkdir(parents=True, exist_ok=True)
+    model.save_npz(weights_path(problem))
+    if verbose:
+        print(
+            f"trained {problem.key:<28} {elapsed:6.1f} s  "
+            + "  ".join(f"{k}={v:.2e}" for k, v in final.items())
+        )
+    return model
+
+
+def train_missing(force: bool | list[str] = False) -> None:
+    """Train every network whose weights are missing (or all / the named ones if forced)."""
+    for problem in all_trainable():
+        forced = force is True or (isinstance(force, list) and problem.key in force)
+        if forced or not weights_path(problem).exists():
+            train(problem)
+
+
+def main(argv: list[str] | None = None) -> None:
+    parser = argparse.ArgumentParser(description="train the validation PINNs")
+    parser.add_argument("--force", nargs="*", default=None, help="retrain these keys (none: all)")
+    parser.add_argument("--list", action="store_true", help="list the networks and exit")
+    args = parser.parse_args(argv)
+    if args.list:
+        for p in all_trainable():
+            print(p.key, "cached" if weights_path(p).exists() else "missing")
+        return
+    force: bool | list[str] = False
+    if args.force is not None:
+        force = args.force if args.force else True
+    train_missing(force)
+
+
+if __name__ == "__main__":
+    main()
