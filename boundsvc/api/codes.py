@@ -51,8 +51,12 @@ SERVICE_CODES: dict[str, tuple[int, str]] = {
                                   "request body."),
     "idempotency_in_progress": (409, "A request with this Idempotency-Key is still running; "
                                      "retry after Retry-After seconds."),
+    "study_not_found": (404, "No study with this id is visible to the caller."),
+    "study_invalid": (422, "The study cannot be computed from these certificates."),
     "store_unavailable": (503, "The database cannot be reached."),
     "schema_out_of_date": (503, "The database schema is behind; run boundsvc db upgrade."),
+    "problem_too_complex": (422, "The symbolic derivation exceeded its time or memory budget."),
+    "service_busy": (503, "Every symbolic worker is busy; retry shortly."),
     "internal_error": (500, "A bug: the body carries a request id to report."),
 }
 
