@@ -9,9 +9,9 @@ import argparse
 import sys
 from collections.abc import Sequence
 
-from boundsvc.cli import db, gate, keys, remote, serve
+from boundsvc.cli import db, gate, keys, remote, report, serve
 
-_MODULES = [serve, db, keys, remote, gate]
+_MODULES = [serve, db, keys, remote, gate, report]  # report after remote: it extends its command
 
 
 def build_parser() -> argparse.ArgumentParser:

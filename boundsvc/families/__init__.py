@@ -17,8 +17,18 @@ from boundsvc.families._base import (
 )
 from boundsvc.families.advection_diffusion import AdvectionDiffusionFamily
 from boundsvc.families.conservation_law import ConservationLawFamily
+from boundsvc.families.elliptic import EllipticFamily
+from boundsvc.families.ode_system import OdeSystemFamily
+from boundsvc.families.semilinear import SemilinearParabolicFamily
 
-CATALOGUE: tuple[Family, ...] = (AdvectionDiffusionFamily(), ConservationLawFamily())
+# the ODE family first: an ODE problem has no space axes, so the others refuse it anyway
+CATALOGUE: tuple[Family, ...] = (
+    OdeSystemFamily(),
+    AdvectionDiffusionFamily(),
+    SemilinearParabolicFamily(),
+    ConservationLawFamily(),
+    EllipticFamily(),
+)
 
 
 def family_by_id(family_id: str) -> Family | None:

@@ -83,3 +83,69 @@ def sup_abs(
     xs = np.linspace(*space, n)
     tt, xx = np.meshgrid(ts, xs, indexing="ij")
     return float(np.max(np.abs(f(tt, xx))))
+
+
+# ------------------------------------------------------------- several space dimensions
+y, z = sp.symbols("y z", real=True)
+SPACE_SYMBOLS = {"x": x, "y": y, "z": z}
+
+
+def _fn_nd(expr: sp.Expr, axes: tuple[str, ...]) -> Callable[..., np.ndarray]:
+    f = sp.lambdify((t, *[SPACE_SYMBOLS[a] for a in axes]), expr, modules="numpy")
+
+    def call(*cols: np.ndarray) -> np.ndarray:
+        return np.broadcast_to(np.asarray(f(*cols), dtype=float), np.shape(cols[0])).copy()
+
+    return call
+
+
+def residuals_nd(
+    plan, u_model: sp.Expr, operator: Operator, u0: sp.Expr, g: sp.Expr, axes: tuple[str, ...]
+) -> dict:
+    """Residual arrays for a time-dependent plan in 1-3 space dimensions (components
+    interior/initial/boundary; point columns are (t, *axes) and (*axes) for the initial set)."""
+    out: dict[str, list[float]] = {}
+    comps = plan.components
+    p = comps["interior"].points
+    out["interior"] = _fn_nd(operator(u_model), axes)(*p.T).tolist()
+    if "initial" in comps:
+        t0 = plan.time.t0
+        xs = comps["initial"].points
+        init = _fn_nd(u_model.subs(t, t0) - u0, axes)
+        out["initial"] = init(np.full(xs.shape[0], t0), *xs.T).tolist()
+    if "boundary" in comps:
+        pb = comps["boundary"].points
+        out["boundary"] = _fn_nd(u_model - g, axes)(*pb.T).tolist()
+    return out
+
+
+def true_error_nd(
+    error: sp.Expr,
+    time: tuple[float, float],
+    space: dict[str, tuple[float, float]],
+    n_time: int = 80,
+    n_space: int = 60,
+) -> TrueError:
+    """L2 norms of ``error(t, x, ...)`` by an independent tensor Gauss-Legendre rule."""
+    axes = tuple(space)
+    e = _fn_nd(error, axes)
+
+    def rule(n: int, lo: float, hi: float) -> tuple[np.ndarray, np.ndarray]:
+        zz, ww = roots_legendre(n)
+        return 0.5 * (hi - lo) * (zz + 1) + lo, 0.5 * (hi - lo) * ww
+
+    nodes = [rule(n_space, *space[a]) for a in axes]
+    grids = np.meshgrid(*[nd for nd, _ in nodes], indexing="ij")
+    weights = np.ones_like(grids[0])
+    for k, wgrid in enumerate(np.meshgrid(*[w for _, w in nodes], indexing="ij")):
+        del k
+        weights = weights * wgrid
+    cols = [g_.ravel() for g_ in grids]
+    wflat = weights.ravel()
+
+    def at(tk: float) -> float:
+        return float(np.sqrt(np.dot(wflat, e(np.full(wflat.size, tk), *cols) ** 2)))
+
+    ts, wt = rule(n_time, *time)
+    st = float(np.sqrt(sum(w_ * at(tk) ** 2 for tk, w_ in zip(ts, wt, strict=True))))
+    return TrueError(space_time=st, final_time=at(time[1]), at=at)
