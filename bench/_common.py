@@ -135,11 +135,16 @@ class Encoder:
             res = {k: v.tolist() for k, v in case.arrays.items()}
             self._part = json.dumps(res).encode()
         elif transport == "base64":
-            self._part = json.dumps({
-                k: {"dtype": "float64", "encoding": "base64",
-                    "data": base64.b64encode(v.tobytes()).decode()}
-                for k, v in case.arrays.items()
-            }).encode()
+            self._part = json.dumps(
+                {
+                    k: {
+                        "dtype": "float64",
+                        "encoding": "base64",
+                        "data": base64.b64encode(v.tobytes()).decode(),
+                    }
+                    for k, v in case.arrays.items()
+                }
+            ).encode()
         elif transport == "npz":
             self._part = self._npz(0)
         elif transport == "octet":
@@ -163,15 +168,20 @@ class Encoder:
         req = head(self.case, epoch)
         if self.transport in ("json-list", "base64"):
             prefix = json.dumps(req)[:-1].encode() + b', "residuals": '
-            return Payload(prefix + self._part + b"}", {"content-type": "application/json"},
-                           "/v1/certificates")
+            return Payload(
+                prefix + self._part + b"}", {"content-type": "application/json"}, "/v1/certificates"
+            )
         if self.transport == "npz":
             body = self._part if epoch == 0 else self._npz(epoch)
-            return Payload(body, {"content-type": "application/x-npz"},
-                           "/v1/certificates/upload")
-        return Payload(self._part, {"content-type": "application/octet-stream",
-                                    "x-boundsvc-request": self.header(self.case, epoch)},
-                       "/v1/certificates/upload")
+            return Payload(body, {"content-type": "application/x-npz"}, "/v1/certificates/upload")
+        return Payload(
+            self._part,
+            {
+                "content-type": "application/octet-stream",
+                "x-boundsvc-request": self.header(self.case, epoch),
+            },
+            "/v1/certificates/upload",
+        )
 
 
 def timed(fn: Callable[[], Any]) -> tuple[float, Any]:

@@ -77,9 +77,24 @@ class Server:
         log = self.log_path.open("ab")
         started = time.perf_counter()
         self.proc = subprocess.Popen(
-            [sys.executable, "-m", "boundsvc.cli", "serve", "--host", "127.0.0.1",
-             "--port", str(self.port), "--database-url", self.url_db, "--log-level", "warning"],
-            cwd=ROOT, env=env, stdout=log, stderr=log,
+            [
+                sys.executable,
+                "-m",
+                "boundsvc.cli",
+                "serve",
+                "--host",
+                "127.0.0.1",
+                "--port",
+                str(self.port),
+                "--database-url",
+                self.url_db,
+                "--log-level",
+                "warning",
+            ],
+            cwd=ROOT,
+            env=env,
+            stdout=log,
+            stderr=log,
         )
         log.close()
         self.client = httpx.Client(base_url=self.base_url, timeout=900.0)
@@ -105,6 +120,14 @@ class Server:
 
     def cpu_seconds(self) -> float:
         return cpu_seconds(self.pid)
+
+    def reset_peak(self) -> bool:
+        """Reset VmHWM to the current RSS (``echo 5 > /proc/<pid>/clear_refs``)."""
+        try:
+            Path(f"/proc/{self.pid}/clear_refs").write_text("5")
+            return True
+        except OSError:
+            return False
 
     def status(self) -> dict[str, int]:
         return proc_status(self.pid)

@@ -44,15 +44,30 @@ def cases(quick: bool = False) -> list[Case]:
         Case("1-D heat, 1e6", HEAT_1D, REG_1D, {"t": 250, "x": 250}, {"x": 16}, 2),
     ]
     if not quick:
-        out.append(Case("1-D heat, 4e6 (largest)", HEAT_1D, REG_1D, {"t": 250, "x": 250},
-                        {"t": 4, "x": 16}, 1, ("base64", "npz", "octet"),
-                        note="1e7 is refused by the plan limits"))
+        out.append(
+            Case(
+                "1-D heat, 4e6 (largest)",
+                HEAT_1D,
+                REG_1D,
+                {"t": 250, "x": 250},
+                {"t": 4, "x": 16},
+                1,
+                ("base64", "npz", "octet"),
+                note="1e7 is refused by the plan limits",
+            )
+        )
     out += [
         Case("2-D heat, 1e5", HEAT_2D, REG_2D, {"t": 4, "x": 160, "y": 160}, {}, 5),
-        Case("2-D heat, 1e6", HEAT_2D, REG_2D, {"t": 4, "x": 250, "y": 250},
-             {"x": 2, "y": 2}, 3),
-        Case("2-D heat, 4e6 (largest)", HEAT_2D, REG_2D, {"t": 4, "x": 250, "y": 250},
-             {"x": 4, "y": 4}, 3, ("base64", "npz", "octet", "octet-httpclient")),
+        Case("2-D heat, 1e6", HEAT_2D, REG_2D, {"t": 4, "x": 250, "y": 250}, {"x": 2, "y": 2}, 3),
+        Case(
+            "2-D heat, 4e6 (largest)",
+            HEAT_2D,
+            REG_2D,
+            {"t": 4, "x": 250, "y": 250},
+            {"x": 4, "y": 4},
+            3,
+            ("base64", "npz", "octet", "octet-httpclient"),
+        ),
     ]
     return out
 
@@ -88,8 +103,11 @@ def _inprocess(case: Case) -> tuple[float, float]:
 
     model = ModelInfo(name="bench", version="1", epoch=0)
     cpu = time.process_time()
-    seconds, _ = timed(lambda: certify(case.classified, case.problem_id, case.plan,
-                                       case.regularity, case.arrays, model))
+    seconds, _ = timed(
+        lambda: certify(
+            case.classified, case.problem_id, case.plan, case.regularity, case.arrays, model
+        )
+    )
     return seconds, time.process_time() - cpu
 
 
@@ -114,12 +132,12 @@ def _request(server: Server, case: Case, enc: Encoder, tr: TransportResult) -> N
     cpu_server = server.cpu_seconds()
     cpu_client = time.process_time()
     if tr.transport == "octet-httpclient":
-        seconds, status = timed(lambda: _post_httpclient(server, payload.path, payload.body,
-                                                         headers))
+        seconds, status = timed(
+            lambda: _post_httpclient(server, payload.path, payload.body, headers)
+        )
         text = ""
     else:
-        seconds, r = timed(lambda: client.post(payload.path, content=payload.body,
-                                               headers=headers))
+        seconds, r = timed(lambda: client.post(payload.path, content=payload.body, headers=headers))
         status, text = r.status_code, r.text[:500]
     tr.client_cpu_s.append(time.process_time() - cpu_client)
     tr.server_cpu_s.append(server.cpu_seconds() - cpu_server)
@@ -137,12 +155,18 @@ def run_case(server: Server, case: Case) -> CaseResult:
     # warm-up (not timed as a repeat): the server rebuilds and caches the plan
     warm = Encoder(case, "octet").payload(next(_EPOCHS))
     assert server.client is not None
-    first, resp = timed(lambda: server.client.post(warm.path, content=warm.body,  # type: ignore[union-attr]
-                                                   headers=warm.headers))
+    first, resp = timed(
+        lambda: server.client.post(
+            warm.path,
+            content=warm.body,  # type: ignore[union-attr]
+            headers=warm.headers,
+        )
+    )
     if resp.status_code != 201:
         raise RuntimeError(f"{case.label}: warm-up {resp.status_code} {resp.text[:500]}")
-    encoders = {t: Encoder(case, "octet" if t == "octet-httpclient" else t)
-                for t in case.transports}
+    encoders = {
+        t: Encoder(case, "octet" if t == "octet-httpclient" else t) for t in case.transports
+    }
     results = {t: TransportResult(t, 0, e.encode_seconds) for t, e in encoders.items()}
     inproc: list[float] = []
     inproc_cpu: list[float] = []
@@ -157,8 +181,17 @@ def run_case(server: Server, case: Case) -> CaseResult:
     logged = server.durations_ms()
     for tr in results.values():
         tr.server_s = [logged.get(rid, float("nan")) / 1e3 for rid in tr.request_ids]
-    return CaseResult(case, inproc, inproc_cpu, first, list(results.values()),
-                      case.n_interior, case.n_values, case.payload_bytes, case.n_time)
+    return CaseResult(
+        case,
+        inproc,
+        inproc_cpu,
+        first,
+        list(results.values()),
+        case.n_interior,
+        case.n_values,
+        case.payload_bytes,
+        case.n_time,
+    )
 
 
 def run(quick: bool = False, log: Any = print) -> list[CaseResult]:
@@ -167,8 +200,10 @@ def run(quick: bool = False, log: Any = print) -> list[CaseResult]:
         log(f"  server up in {server.startup_seconds:.1f} s (pid {server.pid})")
         for case in cases(quick):
             res = run_case(server, case)
-            log(f"  {case.label}: in-process {ms(median(res.inprocess_s))} ms; " + ", ".join(
-                f"{t.transport} {ms(median(t.e2e_s))} ms" for t in res.transports))
+            log(
+                f"  {case.label}: in-process {ms(median(res.inprocess_s))} ms; "
+                + ", ".join(f"{t.transport} {ms(median(t.e2e_s))} ms" for t in res.transports)
+            )
             case.arrays = {}
             case.plan = None
             out.append(res)
@@ -176,18 +211,47 @@ def run(quick: bool = False, log: Any = print) -> list[CaseResult]:
 
 
 def render(results: list[CaseResult]) -> str:
-    head = ["case", "interior N", "values sent", "payload MB", "time nodes", "k",
-            "in-process ms", "in-process CPU ms", "first request ms (plan rebuild)"]
+    head = [
+        "case",
+        "interior N",
+        "values sent",
+        "payload MB",
+        "time nodes",
+        "k",
+        "in-process ms",
+        "in-process CPU ms",
+        "first request ms (plan rebuild)",
+    ]
     rows = []
     for r in results:
         c = r.case
-        rows.append([c.label, f"{r.n_interior:,}", f"{r.n_values:,}", mb(r.payload_bytes),
-                     r.n_time, c.repeats, ms(median(r.inprocess_s)),
-                     ms(median(r.inprocess_cpu_s)), ms(r.first_request_s)])
+        rows.append(
+            [
+                c.label,
+                f"{r.n_interior:,}",
+                f"{r.n_values:,}",
+                mb(r.payload_bytes),
+                r.n_time,
+                c.repeats,
+                ms(median(r.inprocess_s)),
+                ms(median(r.inprocess_cpu_s)),
+                ms(r.first_request_s),
+            ]
+        )
     part_a = table(head, rows)
-    head_b = ["case", "transport", "body MB", "client encode ms", "end-to-end ms",
-              "ratio (wall)", "e2e - in-process ms", "server log ms", "server CPU ms",
-              "ratio (server CPU / in-process CPU)", "client CPU ms"]
+    head_b = [
+        "case",
+        "transport",
+        "body MB",
+        "client encode ms",
+        "end-to-end ms",
+        "ratio (wall)",
+        "e2e - in-process ms",
+        "server log ms",
+        "server CPU ms",
+        "ratio (server CPU / in-process CPU)",
+        "client CPU ms",
+    ]
     rows_b = []
     for r in results:
         base = median(r.inprocess_s)
@@ -195,8 +259,19 @@ def render(results: list[CaseResult]) -> str:
         for t in r.transports:
             e2e = median(t.e2e_s)
             cpu = median(t.server_cpu_s)
-            rows_b.append([r.case.label, t.transport, mb(t.body_bytes), ms(t.encode_s),
-                           ms(e2e), f"{e2e / base:.2f}x", ms(e2e - base),
-                           ms(median(t.server_s)), ms(cpu), f"{cpu / base_cpu:.2f}x",
-                           ms(median(t.client_cpu_s))])
+            rows_b.append(
+                [
+                    r.case.label,
+                    t.transport,
+                    mb(t.body_bytes),
+                    ms(t.encode_s),
+                    ms(e2e),
+                    f"{e2e / base:.2f}x",
+                    ms(e2e - base),
+                    ms(median(t.server_s)),
+                    ms(cpu),
+                    f"{cpu / base_cpu:.2f}x",
+                    ms(median(t.client_cpu_s)),
+                ]
+            )
     return part_a + "\n\n" + table(head_b, rows_b)

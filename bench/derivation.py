@@ -3,8 +3,8 @@
 Over HTTP, for each family a fresh server: ``cold`` is the first POST /v1/problems after
 start (lazy imports, parse, classification, symbolic constants); ``new`` is a first request
 for another problem of the same family on the now warm server (no derivation cache hit;
-only the time interval differs); ``warm`` is the same request repeated (median; the
-derivation cache answers). Server-side times come from the access log.
+only the time interval, or a space interval, differs); ``warm`` is the same request
+repeated (median; the derivation cache answers). Server-side times come from the access log.
 
 In process, in a fresh interpreter per family: ``import boundsvc.certify``, the first
 ``classify`` (cold), ``classify`` of another problem, ``classify`` repeated (no cache) and
@@ -28,21 +28,37 @@ from bench._server import ROOT, Server
 # one representative each (taken from tests/families/); keys: family id
 REPRESENTATIVES: dict[str, dict[str, Any]] = {
     "ode-system": {
-        "equation": "y_t = 1 + y^2", "unknowns": ["y"], "time": [0.0, 1.0],
+        "equation": "y_t = 1 + y^2",
+        "unknowns": ["y"],
+        "time": [0.0, 1.0],
         "initial_value": "0",
     },
     "linear-advection-diffusion-reaction": {
-        "equation": "u_t + a*u_x = k*u_xx - c*u", "space": {"x": [0.0, 3.0]},
-        "time": [0.0, 1.0], "parameters": {"a": 1.5, "k": 0.1, "c": 0.3},
+        "equation": "u_t + a*u_x = k*u_xx - c*u",
+        "space": {"x": [0.0, 3.0]},
+        "time": [0.0, 1.0],
+        "parameters": {"a": 1.5, "k": 0.1, "c": 0.3},
     },
     "semilinear-parabolic": {
-        "equation": "u_t = e^2*u_xx + u - u^3", "space": {"x": [-1.0, 1.0]},
-        "time": [0.0, 1.0], "parameters": {"e": 0.2}, "boundary": "dirichlet",
-        "initial_value": "tanh(x/(sqrt(2)*e))", "boundary_value": "tanh(x/(sqrt(2)*e))",
+        "equation": "u_t = e^2*u_xx + u - u^3",
+        "space": {"x": [-1.0, 1.0]},
+        "time": [0.0, 1.0],
+        "parameters": {"e": 0.2},
+        "boundary": "dirichlet",
+        "initial_value": "tanh(x/(sqrt(2)*e))",
+        "boundary_value": "tanh(x/(sqrt(2)*e))",
+    },
+    "linear-elliptic": {
+        "equation": "-u_xx = pi^2*sin(pi*x)",
+        "space": {"x": [0.0, 2.0]},
+        "boundary_value": "0",
     },
     "scalar-conservation-law": {
-        "equation": "u_t + u*u_x = nu*u_xx", "space": {"x": [-1.0, 1.0]},
-        "time": [0.0, 1.0], "parameters": {"nu": 0.1}, "boundary": "dirichlet",
+        "equation": "u_t + u*u_x = nu*u_xx",
+        "space": {"x": [-1.0, 1.0]},
+        "time": [0.0, 1.0],
+        "parameters": {"nu": 0.1},
+        "boundary": "dirichlet",
         "initial_value": "0.25 - 0.75*tanh(1.5*x/(4*nu))",
         "boundary_value": "0.25 - 0.75*tanh(1.5*(x - 0.25*t)/(4*nu))",
     },
@@ -51,9 +67,15 @@ WARM_REPEATS = 20
 
 
 def variant(problem: dict[str, Any], i: int) -> dict[str, Any]:
-    """Another problem of the same shape (a different final time: a new content hash)."""
+    """Another problem of the same shape (a different final time, or for a steady problem
+    a different end of the first space axis: a new content hash)."""
     out = copy.deepcopy(problem)
-    out["time"] = [out["time"][0], out["time"][1] + 1e-3 * i]
+    if "time" in out:
+        out["time"] = [out["time"][0], out["time"][1] + 1e-3 * i]
+    else:
+        axis = next(iter(out["space"]))
+        low, high = out["space"][axis]
+        out["space"][axis] = [low, high + 1e-3 * i]
     return out
 
 
@@ -141,10 +163,19 @@ def inprocess_probe(problem: dict[str, Any]) -> dict[str, float]:
 
 
 def _inprocess(problem: dict[str, Any]) -> dict[str, float]:
-    env = dict(os.environ, OPENBLAS_NUM_THREADS="1",
-               PYTHONPATH=str(ROOT) + os.pathsep + os.environ.get("PYTHONPATH", ""))
-    proc = subprocess.run([sys.executable, "-m", "bench.derivation", json.dumps(problem)],
-                          cwd=ROOT, env=env, capture_output=True, text=True, timeout=300)
+    env = dict(
+        os.environ,
+        OPENBLAS_NUM_THREADS="1",
+        PYTHONPATH=str(ROOT) + os.pathsep + os.environ.get("PYTHONPATH", ""),
+    )
+    proc = subprocess.run(
+        [sys.executable, "-m", "bench.derivation", json.dumps(problem)],
+        cwd=ROOT,
+        env=env,
+        capture_output=True,
+        text=True,
+        timeout=300,
+    )
     if proc.returncode != 0:
         raise RuntimeError(proc.stderr[-1000:])
     return dict(json.loads(proc.stdout.strip().splitlines()[-1]))
@@ -159,29 +190,45 @@ def run(quick: bool = False, log: Any = print) -> list[DerivationResult]:
         res = _http(family, problem)
         if not res.error:
             res.inprocess = _inprocess(problem)
-        log(f"  {family}: cold {ms(res.http_cold_s)} ms, warm "
-            f"{ms(median(res.http_warm_s))} ms {res.error}")
+        log(
+            f"  {family}: cold {ms(res.http_cold_s)} ms, warm "
+            f"{ms(median(res.http_warm_s))} ms {res.error}"
+        )
         out.append(res)
     return out
 
 
 def render(results: list[DerivationResult]) -> str:
-    head = ["family", "HTTP cold ms (client / server)", "HTTP new problem, warm server ms",
-            "HTTP warm ms (client / server)", "import ms", "classify cold ms",
-            "classify new ms", "classify repeated ms", "derive warm ms"]
+    head = [
+        "family",
+        "HTTP cold ms (client / server)",
+        "HTTP new problem, warm server ms",
+        "HTTP warm ms (client / server)",
+        "import ms",
+        "classify cold ms",
+        "classify new ms",
+        "classify repeated ms",
+        "derive warm ms",
+    ]
     rows = []
     for r in results:
         if r.error:
             rows.append([r.family, r.error, "", "", "", "", "", "", ""])
             continue
         ip = r.inprocess
-        rows.append([
-            r.family + ("" if r.classified_as == r.family else f" (as {r.classified_as})"),
-            f"{ms(r.http_cold_s)} / {ms(r.http_cold_server_s)}", ms(r.http_new_server_s),
-            f"{ms(median(r.http_warm_s))} / {ms(median(r.http_warm_server_s))}",
-            ms(ip["import_s"]), ms(ip["classify_cold_s"]), ms(ip["classify_new_s"]),
-            f"{ip['classify_repeat_s'] * 1e3:.2f}", f"{ip['derive_warm_s'] * 1e3:.3f}",
-        ])
+        rows.append(
+            [
+                r.family + ("" if r.classified_as == r.family else f" (as {r.classified_as})"),
+                f"{ms(r.http_cold_s)} / {ms(r.http_cold_server_s)}",
+                ms(r.http_new_server_s),
+                f"{ms(median(r.http_warm_s))} / {ms(median(r.http_warm_server_s))}",
+                ms(ip["import_s"]),
+                ms(ip["classify_cold_s"]),
+                ms(ip["classify_new_s"]),
+                f"{ip['classify_repeat_s'] * 1e3:.2f}",
+                f"{ip['derive_warm_s'] * 1e3:.3f}",
+            ]
+        )
     return table(head, rows)
 
 
