@@ -10,22 +10,19 @@ from __future__ import annotations
 
 import os
 import secrets
-from collections.abc import AsyncIterator, Iterable, Iterator
-from contextlib import ExitStack
+from collections.abc import Iterator
 from pathlib import Path
 from typing import Any
 
-import httpx
 import psycopg
 import pytest
-from anyio.from_thread import BlockingPortal, start_blocking_portal
-from fastapi import FastAPI
 from psycopg import sql
 from sqlalchemy.engine import URL, make_url
 
 from boundsvc.api import build_app
 from boundsvc.settings import Settings
 from boundsvc.store import Store, open_store, upgrade
+from tests.inprocess import InProcessClient
 
 PG_SERVER_URL = os.environ.get(
     "BOUNDSVC_TEST_POSTGRES_URL", "postgresql+psycopg://postgres@127.0.0.1:5432/postgres"
@@ -134,56 +131,10 @@ def any_store(db_url: str) -> Iterator[Store]:
         opened.dispose()
 
 
-class TestClient:
-    """A synchronous client of an ASGI app, in process (httpx ``ASGITransport``).
-
-    Starlette's own TestClient warns about httpx; this is the same idea in a few lines: an
-    event loop in a helper thread (an anyio blocking portal) runs httpx's async client.
-    """
+class TestClient(InProcessClient):
+    """The shared in-process client (tests/inprocess.py), under the name these tests use."""
 
     __test__ = False
-
-    def __init__(self, app: FastAPI, *, raise_server_exceptions: bool = True) -> None:
-        self.app = app
-        self._stack = ExitStack()
-        self._portal: BlockingPortal = self._stack.enter_context(start_blocking_portal())
-        transport = httpx.ASGITransport(
-            app=app, raise_app_exceptions=raise_server_exceptions, client=("127.0.0.1", 50000)
-        )
-        self._client = httpx.AsyncClient(transport=transport, base_url="http://testserver")
-
-    def request(
-        self, method: str, url: str, *, content: Any = None, **kwargs: Any
-    ) -> httpx.Response:
-        """Send one request; a sync iterator ``content`` is streamed (chunked)."""
-        if (
-            content is not None
-            and not isinstance(content, bytes | str)
-            and isinstance(content, Iterable)
-        ):
-            chunks = list(content)
-
-            async def stream() -> AsyncIterator[bytes]:
-                for chunk in chunks:
-                    yield chunk
-
-            content = stream()
-        return self._portal.call(
-            lambda: self._client.request(method, url, content=content, **kwargs)
-        )
-
-    def get(self, url: str, **kwargs: Any) -> httpx.Response:
-        return self.request("GET", url, **kwargs)
-
-    def post(self, url: str, **kwargs: Any) -> httpx.Response:
-        return self.request("POST", url, **kwargs)
-
-    def delete(self, url: str, **kwargs: Any) -> httpx.Response:
-        return self.request("DELETE", url, **kwargs)
-
-    def close(self) -> None:
-        self._portal.call(self._client.aclose)
-        self._stack.close()
 
 
 class ApiFactory:
