@@ -16,8 +16,8 @@ Derivatives of ``u`` with respect to the input ``x_j`` of row ``i`` are taken as
 ``sum_i u_i`` with respect to the input tensor; this equals the per-row derivative only when the
 module treats rows independently (true for MLPs, convolutions over the feature axis, ...;
 false for ``BatchNorm`` in training mode: put the module in evaluation mode first).
-For the 1e-10 agreement with closed forms the module must be float64 (``module.double()``); a float32 module gives
-float32-accurate residuals, converted to float64.
+For the 1e-10 agreement with closed forms the module must be float64 (``module.double()``);
+a float32 module gives float32-accurate residuals, converted to float64.
 """
 
 from __future__ import annotations

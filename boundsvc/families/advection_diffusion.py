@@ -380,7 +380,7 @@ class AdvectionDiffusionFamily(Family):
             if s not in gens and (info := ns.describe(s)) is not None and info.kind == "field"
         ]
         if others:
-            names = ", ".join(sorted(ns.describe(s).name for s in others))
+            names = ", ".join(sorted(ns.display_name(s) for s in others))
             return (
                 f"the equation contains {names}; this family has u_t, first and pure second "
                 "space derivatives only"

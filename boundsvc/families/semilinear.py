@@ -182,7 +182,7 @@ class SemilinearParabolicFamily(Family):
         others = sorted(
             ns.display_name(s)
             for s in expr.free_symbols
-            if s not in known and ns.describe(s).kind == "field"
+            if s not in known and (info := ns.describe(s)) is not None and info.kind == "field"
         )
         if others:
             return (
