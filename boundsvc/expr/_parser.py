@@ -233,6 +233,8 @@ class _Parser:
             value = self._expression()
             self._close(token, "(")
             self._leave()
+            if self._peek().kind == "derivative":
+                value = self._total_derivative(value, self._advance())
         else:
             where = "" if token.kind == "end" else " "
             self._fail(
@@ -250,6 +252,39 @@ class _Parser:
                 following,
             )
         return value
+
+    def _total_derivative(self, value: Any, suffix: Token) -> Any:
+        """``(expr)_x``: the total derivative by the chain rule, letter by letter.
+
+        D_c e = de/dc + sum over the fields f in e of de/df * f_c, so ``(u^2/2)_x`` is
+        ``u*u_x``; every derivative symbol it creates obeys the usual order limit.
+        """
+        for letter in suffix.text:
+            if letter not in self._namespace.coordinates:
+                self._fail(
+                    "expression_bad_derivative",
+                    f"{letter!r} in the derivative suffix '_{suffix.text}' is not a coordinate "
+                    "here; the coordinates are " + ", ".join(self._namespace.coordinates),
+                    suffix,
+                )
+            value = self._build(suffix, partial(self._derivative_once, value, letter, suffix))
+        return value
+
+    def _derivative_once(self, value: Any, letter: str, suffix: Token) -> Any:
+        ns = self._namespace
+        result = sympy.diff(value, ns.coordinate(letter))
+        for symbol in sorted(value.free_symbols, key=str):
+            info = ns.describe(symbol)
+            if info is None or info.kind != "field":
+                continue
+            assert info.unknown is not None
+            letters = "".join(info.derivative) + letter
+            try:
+                derived = ns.lookup(f"{info.unknown}_{letters}", 0, self._max_order)
+            except ExpressionError as exc:
+                raise ExpressionError(exc.code, exc.reason, suffix.position, self._text) from None
+            result += sympy.diff(value, symbol) * derived
+        return result
 
     def _close(self, opening: Token, what: str) -> None:
         token = self._peek()

@@ -20,12 +20,16 @@ from boundsvc.expr._limits import ExpressionLimits
 
 __all__ = ["Token", "TokenKind", "excerpt", "tokenize"]
 
-TokenKind = Literal["number", "name", "op", "lparen", "rparen", "comma", "equals", "end"]
+TokenKind = Literal[
+    "number", "name", "op", "lparen", "rparen", "comma", "equals", "derivative", "end"
+]
 
 # [0-9] rather than \d: \d also matches non-ASCII digits (which never get this far, but the
 # regexes should not depend on that).
 _NUMBER = re.compile(r"(?:([0-9]+)(?:\.([0-9]*))?|\.([0-9]+))(?:[eE]([+-]?[0-9]+))?")
 _NAME = re.compile(r"[A-Za-z][A-Za-z0-9_]*")
+# ``(f(u))_x``: a derivative suffix directly after a closing parenthesis (letters only)
+_SUFFIX = re.compile(r"_([A-Za-z]+)")
 _SINGLE: dict[str, TokenKind] = {
     "+": "op",
     "-": "op",
@@ -252,6 +256,11 @@ def tokenize(text: str, limits: ExpressionLimits) -> list[Token]:
                 )
             token = Token("equals", "=", index)
             index += 1
+        elif char == "_" and tokens and tokens[-1].kind == "rparen" and _SUFFIX.match(text, index):
+            match = _SUFFIX.match(text, index)
+            assert match is not None
+            token = Token("derivative", match.group(1), index)
+            index = match.end()
         elif char in _SINGLE:
             token = Token(_SINGLE[char], char, index)
             index += 1

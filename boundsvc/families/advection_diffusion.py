@@ -745,10 +745,21 @@ class ClassifiedADR(Classified):
         ns = self.problem.namespace
         if not self.variable:
             c_text, c_latex = to_text(self.sym_c, ns), to_latex(self.sym_c, ns)
-            if not (self.sym_c.is_Atom or isinstance(self.sym_c, sympy.Mul)):
-                c_text, c_latex = f"({c_text})", rf"\left({c_latex}\right)"
-            rate_text = f"lambda - 2*{c_text}"
-            rate_latex = rf"\lambda - 2 {c_latex}"
+            if self.sym_c.is_Number:
+                # a numeric reaction coefficient is folded in: "lambda - 2", never "lambda - 2*0"
+                twice = sympy.nsimplify(2 * self.sym_c)
+                if twice == 0:
+                    rate_text, rate_latex = "lambda", r"\lambda"
+                else:
+                    sign = "-" if twice > 0 else "+"
+                    mag = abs(twice)
+                    rate_text = f"lambda {sign} {to_text(mag, ns)}"
+                    rate_latex = rf"\lambda {sign} {to_latex(mag, ns)}"
+            else:
+                if not (self.sym_c.is_Symbol or self.sym_c.is_Function):
+                    c_text, c_latex = f"({c_text})", rf"\left({c_latex}\right)"
+                rate_text = f"lambda - 2*{c_text}"
+                rate_latex = rf"\lambda - 2\,{c_latex}"
         else:
             q = self._q(self._treatments(()))
             rate_text = f"lambda + sup_x ({to_text(q, ns)})"

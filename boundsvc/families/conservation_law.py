@@ -268,7 +268,12 @@ class ClassifiedConservationLaw(Classified):
                 name="growth rate of ||w||^2",
                 symbol="a(t)",
                 expression=str(rate),
-                latex=sympy.latex(rate),
+                latex=sympy.latex(
+                    rate,
+                    symbol_names={lam: r"\lambda", fp: r"f''_{+}", fm: r"f''_{-}"},
+                )
+                .replace(r"S_{minus}{\left(t \right)}", r"S_{-}(t)")
+                .replace(r"S_{plus}{\left(t \right)}", r"S_{+}(t)"),
                 derivation=(
                     "w_t + (f(u_model) - f(u))_x = nu w_xx + R; multiply by w, integrate over x.",
                     "w (f(u_model) - f(u))_x = d_x q(u_model|u) + u_x Q(u_model|u) "

@@ -200,6 +200,33 @@ def test_derivative_order_limits() -> None:
     expect_error(lambda: parse("u_xx", NS, limits), "expression_bad_derivative", 0, "at most 1")
 
 
+def test_derivative_suffix_applies_the_chain_rule() -> None:
+    # (f(u))_x = f'(u) u_x: the product and chain rules of calculus, checked against sympy's
+    # own differentiation of the same expression with u = u(x) a function.
+    ux, uxx = NS.field("u", ("x",)), NS.field("u", ("x", "x"))
+    assert parse("(u^2/2)_x") == u * ux
+    assert sympy.expand(parse("(u^3/3 - u)_x") - (u**2 - 1) * ux) == 0
+    assert sympy.expand(parse("((1 + x^2)*u_x)_x") - (2 * x * ux + (1 + x**2) * uxx)) == 0
+    assert parse("(sin(u))_x") == sympy.cos(u) * ux
+    assert parse("(u)_tx") == NS.field("u", ("t", "x"))
+    # a conservation law typed in flux form and in expanded form is the same equation
+    flux, expanded = parse_equation("u_t + (u^2/2)_x = nu*u_xx", NS)
+    same, same_rhs = parse_equation("u_t + u*u_x = nu*u_xx", NS)
+    assert (flux, expanded) == (same, same_rhs)
+    # an independent check: sympy differentiating u(x)^3 sin(x) by x
+    fx = sympy.Function("f")(x)
+    reference = sympy.diff(fx**3 * sympy.sin(x), x).subs(sympy.Derivative(fx, x), ux).subs(fx, u)
+    assert sympy.expand(parse("(u^3*sin(x))_x") - reference) == 0
+
+
+def test_derivative_suffix_errors() -> None:
+    expect_error(lambda: parse("(u)_y"), "expression_bad_derivative", 3, "not a coordinate")
+    expect_error(lambda: parse("(u_xxxx)_x"), "expression_bad_derivative", 8, "order 5")
+    # only directly after ')': a name never starts with '_'
+    expect_error(lambda: parse("u + _x"), "expression_syntax", 4, "start with a letter")
+    expect_error(lambda: parse("(u)_x(t)"), "expression_missing_operator", 5)
+
+
 def test_unused_coordinate_letters_are_free_names() -> None:
     lorenz = Namespace(coordinates=("t",), unknowns=("x", "y", "z"), parameters=("sigma",))
     assert parse("sigma*(y - x)", lorenz) == lorenz.parameter("sigma") * (
