@@ -56,6 +56,13 @@ class PlanRequest(BaseModel):
     components: dict[str, InlinePlanComponent] | None = Field(
         default=None, description="custom: points and weights per component"
     )
+    optional_components: list[str] = Field(
+        default_factory=list,
+        max_length=8,
+        description="Components the family offers beyond the needed ones (listed as "
+        "'optional_components' by POST /v1/problems), e.g. 'boundary_t' for the boundary "
+        "lifting of the advection-diffusion family; the plan then has their points too.",
+    )
 
     @model_validator(mode="after")
     def _one_problem(self) -> PlanRequest:

@@ -9,7 +9,14 @@ from typing import cast
 import numpy as np
 from numpy.typing import NDArray
 
-from boundsvc.families._base import EnergyInequality, Rigor, SourceInfo, SteadyBound, weakest
+from boundsvc.families._base import (
+    EnergyInequality,
+    NormAddition,
+    Rigor,
+    SourceInfo,
+    SteadyBound,
+    weakest,
+)
 from boundsvc.gronwall import LOG_FLOAT_MAX, Propagation, propagate
 from boundsvc.quadrature import TimeGrid
 
@@ -188,12 +195,28 @@ def assemble_bound(ineq: EnergyInequality, grid: TimeGrid) -> BoundResult:
             + (f" and not beyond t = {vacuous_from:.6g}" if vacuous_from else "")
         )
     profile = [_finite_exp_half(float(v)) for v in profile_log]
+    log10_st = (0.5 * log_st / log10) if math.isfinite(log_st) else None
+    log10_final = (0.5 * log_final / log10) if math.isfinite(log_final) else None
+    if ineq.norm_addition is not None:
+        add = ineq.norm_addition
+        # triangle inequality ||e|| <= sqrt(Y) + ||b|| at each time; Minkowski in space-time
+        profile = [
+            None if p is None else p + float(b) for p, b in zip(profile, add.profile, strict=True)
+        ]
+        if l2_final is not None:
+            l2_final += float(add.profile[-1])
+            log10_final = math.log10(l2_final) if l2_final > 0 else None
+        if l2_st is not None:
+            l2_st += add.space_time
+            log10_st = math.log10(l2_st) if l2_st > 0 else None
+        terms.append(_addition_term(add))
+        rigor = weakest(rigor, add.info.rigor)
     return BoundResult(
         status=status,
         l2_space_time=l2_st,
         l2_final_time=l2_final,
-        log10_l2_space_time=(0.5 * log_st / log10) if math.isfinite(log_st) else None,
-        log10_l2_final_time=(0.5 * log_final / log10) if math.isfinite(log_final) else None,
+        log10_l2_space_time=log10_st,
+        log10_l2_final_time=log10_final,
         profile_t=[float(t) for t in times],
         profile_bound=profile,
         vacuous_from=vacuous_from,
@@ -206,6 +229,61 @@ def assemble_bound(ineq: EnergyInequality, grid: TimeGrid) -> BoundResult:
         warnings=warnings,
         rigor=rigor,
     )
+
+
+def assemble_best(
+    ineq: EnergyInequality, grid: TimeGrid
+) -> tuple[EnergyInequality, BoundResult, list[str]]:
+    """Assemble ``ineq`` and each of its ``alternatives``; keep the smallest space-time bound.
+
+    Every alternative is a valid inequality for the same error, so the smaller bound is as
+    valid as either (the choice is about tightness only). Returns the chosen inequality, its
+    result and a warning naming the values of the others.
+    """
+    best, result = ineq, assemble_bound(ineq, grid)
+    if not ineq.alternatives:
+        return best, result, []
+    seen = [(ineq, result)]
+    for alt in ineq.alternatives:
+        alt_result = assemble_bound(alt, grid)
+        seen.append((alt, alt_result))
+        if _key(alt_result) < _key(result):
+            best, result = alt, alt_result
+    values = "; ".join(
+        f"{i.label or 'default estimate'}: l2_space_time {_fmt(r.l2_space_time)}, "
+        f"l2_final_time {_fmt(r.l2_final_time)}"
+        for i, r in seen
+    )
+    note = (
+        f"{len(seen)} valid estimates were assembled and the smallest space-time bound is "
+        f"reported ({best.label or 'default estimate'}): {values}"
+    )
+    return best, result, [note]
+
+
+def _key(result: BoundResult) -> tuple[float, float]:
+    st, ft = result.l2_space_time, result.l2_final_time
+    return (math.inf if st is None else st, math.inf if ft is None else ft)
+
+
+def _fmt(value: float | None) -> str:
+    return "not finite" if value is None else f"{value:.6g}"
+
+
+def _addition_term(add: NormAddition) -> dict[str, object]:
+    info = add.info
+    return {
+        "name": info.name,
+        "symbol": info.symbol,
+        "value": float(add.profile[-1]),
+        "formula": info.formula,
+        "rigor": info.rigor,
+        "share_final_time": None,
+        "share_space_time": None,
+        "detail": (info.detail + "; " if info.detail else "")
+        + "value = the norm added to the final-time bound (triangle inequality, not a share "
+        f"of the squared bound); space-time norm {add.space_time:.6g}",
+    }
 
 
 def _log_norm_space_time(prop: Propagation, grid: TimeGrid) -> float:

@@ -19,7 +19,7 @@ from typing import Any, cast
 
 from api_schemas import ModelInfo, PlanRequest, ProblemSpec, QuadratureOptions
 from boundsvc import __version__
-from boundsvc.assembly import BoundResult, assemble_bound, final_log_at, steady_result
+from boundsvc.assembly import BoundResult, assemble_best, final_log_at, steady_result
 from boundsvc.errors import PlanInvalid
 from boundsvc.families import (
     CertifyInputs,
@@ -145,6 +145,7 @@ def problem_summary(
             for r in reqs
         ],
         "components": classified.components(),
+        "optional_components": classified.optional_components(),
         "bounded_quantities": list(fam.bounded_quantities),
         "hypotheses": classified.hypotheses(),
         "constants": constants,
@@ -177,6 +178,8 @@ def plan_spec(request: PlanRequest, problem_id: str) -> dict[str, Any]:
         "points": dict(sorted(request.points.items())),
         "panels": dict(sorted(request.panels.items())),
     }
+    if request.optional_components:  # absent when empty: earlier plans keep their ids
+        spec["optional_components"] = sorted(set(request.optional_components))
     if request.rule in ("sobol", "monte-carlo"):
         spec["n"] = request.n
         spec["replicates"] = request.replicates if request.rule == "sobol" else 1
@@ -203,6 +206,16 @@ def build_plan(classified: Classified, spec: Mapping[str, Any]) -> Plan:
         return cast(Plan, cached)
     domain = classified.problem.domain
     names = classified.components()
+    for name in spec.get("optional_components", []):
+        if name not in classified.optional_components():
+            raise PlanInvalid(
+                "plan_invalid",
+                f"{name!r} is not an optional component of this problem's theorem (it offers "
+                f"{', '.join(classified.optional_components()) or 'none'})",
+                "optional_components",
+            )
+        if name not in names:
+            names = [*names, name]
     rule = spec.get("rule", "gauss-legendre")
     if domain.time is None and rule not in ("gauss-legendre", "grid"):
         raise PlanInvalid(
@@ -319,6 +332,10 @@ def certify(
     values = parse_all_regularity(classified, regularity)
     n_eq = len(classified.problem.unknowns)
     arrays, digests = validate_residuals(plan, residuals, classified.components(), n_eq)
+    scale = classified.residual_scale()
+    if scale != 1.0 and "interior" in arrays:
+        # the digests stay those of the arrays as sent; the theorem sees its own residual
+        arrays = {**arrays, "interior": arrays["interior"] * scale}
     options = quadrature or QuadratureOptions()
     statistical = [
         c
@@ -340,7 +357,8 @@ def certify(
     else:
         with quadrature_log(log):
             inequality = classified.energy_inequality(inputs)
-        result = assemble_bound(inequality, plan.time)
+        inequality, result, chosen = assemble_best(inequality, plan.time)
+        inequality.warnings.extend(chosen)
     status = result.status
     warnings = list(inequality.warnings) + list(result.warnings)
     if inequality.failed_hypotheses:

@@ -25,6 +25,7 @@ from validation.service import Api
 
 FloatArray = np.ndarray
 MARGIN = 1.10
+LIFTING = "boundary_t"
 GRID_T, GRID_X = 201, 201
 N_ST, N_X, N_T_ODE = 200, 400, 400
 
@@ -61,6 +62,11 @@ class Outcome:
     @property
     def ok(self) -> bool:
         return not self.failures
+
+    @property
+    def lifted(self) -> bool:
+        """The service reported the boundary-lifting estimate."""
+        return any(c.get("name") == "boundary lifting" for c in self.certificate["constants"])
 
 
 def _grid(problem: Problem, t_limit: float = math.inf) -> tuple[FloatArray, FloatArray | None]:
@@ -172,6 +178,20 @@ def residuals(problem: Problem, model: MLP, plan: Mapping[str, Any]) -> dict[str
                 raise AssertionError(f"{problem.key}: hard BC violated by {np.max(np.abs(rb))}")
             rb = np.zeros_like(rb)
         out["boundary"] = rb
+    rate = _component(plan, LIFTING)
+    if rate is not None:
+        # d/dt (u_model - g) at the boundary points: the network's exact u_t, the data's
+        # derivative by the complex step
+        pts = _as_model_points(problem, rate)
+        u_t = residual_fields(model, pts, problem.axes, ("u_t",), outputs=problem.outputs)["u_t"]
+        rt = np.asarray(u_t).reshape(-1) - problem.boundary_rate(pts[:, 0], pts[:, 1])
+        if problem.lift is not None:
+            if float(np.max(np.abs(rt))) > 1e-10:
+                raise AssertionError(
+                    f"{problem.key}: hard BC rate violated by {np.max(np.abs(rt))}"
+                )
+            rt = np.zeros_like(rt)
+        out[LIFTING] = rt
     return out
 
 
@@ -228,13 +248,20 @@ def certify_network(
     weights_key: str | None = None,
     t_limit: float = math.inf,
     expect_valid: bool = True,
+    lifting: bool = True,
 ) -> Outcome:
-    """Problem -> plan -> certificate for ``model``, then the comparison with the truth."""
+    """Problem -> plan -> certificate for ``model``, then the comparison with the truth.
+
+    ``lifting``: where the family offers the boundary lifting (``boundary_t`` among the
+    problem's optional components), ask the plan for it and send ``d/dt`` of the boundary
+    residual; the service reports the smaller of the lifted and the flux estimate.
+    """
     info = api.problem(problem.problem)
     failures: list[str] = []
     if info["family"] != problem.family:
         failures.append(f"classified as {info['family']}, expected {problem.family}")
-    plan = api.plan(info["problem_id"], problem.points)
+    optional = [LIFTING] if lifting and LIFTING in info.get("optional_components", []) else []
+    plan = api.plan(info["problem_id"], problem.points, optional)
     reg = problem.regularity if variant == "default" else problem.variants[variant]
     sups, notes = model_sups(
         problem, model, reg, time_varying=variant != "constant sups", t_limit=t_limit
@@ -248,7 +275,11 @@ def certify_network(
         plan["plan_id"],
         regularity,
         res,
-        {"name": f"validation/{wkey}", "version": "1", "metadata": {"variant": variant}},
+        {
+            "name": f"validation/{wkey}",
+            "version": "1",
+            "metadata": {"variant": variant, "lifting": bool(optional)},
+        },
     )
     st, ft, prof = true_errors(problem, model, cert["time_profile"]["t"], t_limit)
     out = Outcome(

@@ -5,7 +5,7 @@ from __future__ import annotations
 import math
 import statistics
 from collections import defaultdict
-from collections.abc import Sequence
+from collections.abc import Iterable, Sequence
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
@@ -53,6 +53,9 @@ def _share(o: Outcome, word: str) -> float:
 
 
 # -- plots ---------------------------------------------------------------------------
+def _floats(values: Iterable[float | None]) -> list[float]:
+    """Plot values with the missing ones as NaN (matplotlib leaves a gap)."""
+    return [math.nan if v is None else float(v) for v in values]
 
 
 def sweep_plot(sweep: Sweep, path: Path) -> None:
@@ -62,10 +65,10 @@ def sweep_plot(sweep: Sweep, path: Path) -> None:
         ("l2_space_time", "true_space_time", "o-", "space-time"),
         ("l2_final_time", "true_final_time", "s-", "final time"),
     ):
-        ax.plot(x, [o.bound(which) for o in sweep.outcomes], style, label=f"bound, {label}")
+        ax.plot(x, _floats(o.bound(which) for o in sweep.outcomes), style, label=f"bound, {label}")
         ax.plot(
             x,
-            [getattr(o, true_attr) for o in sweep.outcomes],
+            _floats(getattr(o, true_attr) for o in sweep.outcomes),
             style.replace("-", "--"),
             mfc="none",
             label=f"true error, {label}",
@@ -73,7 +76,7 @@ def sweep_plot(sweep: Sweep, path: Path) -> None:
     if sweep.extra:
         ax.plot(
             x,
-            [o.bound("l2_space_time") for o in sweep.extra],
+            _floats(o.bound("l2_space_time") for o in sweep.extra),
             "^:",
             label="bound, space-time, constant sups",
         )
@@ -268,9 +271,9 @@ def _sweep_section(s: Sweep, png: str) -> list[str]:
             f"Trend along `{s.parameter}`: bound {trend.get('bound')}, true error "
             f"{trend.get('measured_error')}."
         )
-    for t_end, o in s.beyond:
-        if isinstance(o, Outcome):
-            c2 = o.certificate
+    for t_end, past in s.beyond:
+        if isinstance(past, Outcome):
+            c2 = past.certificate
             last = [b for b in c2["time_profile"]["l2_error_bound"] if b is not None]
             lines.append(
                 f"- Beyond the blow-up, T = {t_end:g} (network of the last sweep point): status "
@@ -278,13 +281,13 @@ def _sweep_section(s: Sweep, png: str) -> list[str]:
                 f"finite profile bound {_f(last[-1] if last else None)}; warnings: "
                 + "; ".join(c2.get("warnings") or [])
                 + (
-                    "; **profile check FAILED**: " + "; ".join(o.failures)
-                    if o.failures
+                    "; **profile check FAILED**: " + "; ".join(past.failures)
+                    if past.failures
                     else "; every finite profile bound is above the true error"
                 )
             )
         else:
-            lines.append(f"- Beyond the blow-up, T = {t_end:g}: {o[:400]}")
+            lines.append(f"- Beyond the blow-up, T = {t_end:g}: {past[:400]}")
     lines.append("")
     return lines
 
@@ -458,7 +461,7 @@ def write_report(results: Results) -> Path:
         ],
         rows,
     )
-    L += ["", LIFTING, ""]
+    L += ["", *_lifting_section(results), ""]
     L += ["## Sweeps", ""]
     for s, png in zip(results.sweeps, pngs, strict=True):
         L += _sweep_section(s, png)
@@ -470,6 +473,70 @@ def write_report(results: Results) -> Path:
     path = DOCS / "validation.md"
     path.write_text("\n".join(L) + "\n", encoding="utf-8")
     return path
+
+
+def _lifting_share(o: Outcome) -> float | None:
+    """The lifting norm ||B r(T)|| as a share of the final-time bound (None if not lifted)."""
+    term = next((t for t in _terms(o) if t.get("name") == "boundary lifting"), None)
+    bound = o.bound("l2_final_time")
+    if term is None or not bound or term.get("value") is None:
+        return None
+    return float(term["value"]) / bound
+
+
+def _lifting_section(results: Results) -> list[str]:
+    lines = [
+        "### Boundary lifting: before and after",
+        "",
+        "Same networks and regularity; *before* = the boundary flux estimate alone (no "
+        "`boundary_t` sent), *after* = the suite certificate (lifting offered; the service "
+        "reports the smaller of the two estimates).",
+        "",
+    ]
+    rows = []
+    for before, after in results.lifting:
+        share = _lifting_share(after)
+        rows.append(
+            [
+                f"`{after.problem.key}`",
+                _f(before.effectivity(), ".3g"),
+                _f(after.effectivity(), ".3g"),
+                _f(before.effectivity("l2_final_time"), ".3g"),
+                _f(after.effectivity("l2_final_time"), ".3g"),
+                _gain(before, after),
+                "lifting" if after.lifted else "flux",
+                dominant(after),
+                _f(100 * share, ".0f") + " %" if share is not None else "n/a",
+            ]
+        )
+    lines += _table(
+        [
+            "network",
+            "eff ST before",
+            "eff ST after",
+            "eff T before",
+            "eff T after",
+            "gain ST",
+            "reported",
+            "dominant term of ||v||^2 (after)",
+            "||B r(T)|| / bound T",
+        ],
+        rows,
+    )
+    sweeps = [
+        (s.name, o)
+        for s in results.sweeps
+        for o in s.outcomes
+        if o.problem.family == "linear-advection-diffusion-reaction"
+    ]
+    lifted = sum(o.lifted for _, o in sweeps)
+    lines += [
+        "",
+        f"In the heat sweeps below {lifted} of {len(sweeps)} certificates report the lifting.",
+        "",
+        LIFTING,
+    ]
+    return lines
 
 
 def _gain(v: Outcome, b: Outcome) -> str:
@@ -497,24 +564,25 @@ def _findings(results: Results) -> str:
     return " ".join(lines)
 
 
-LIFTING = """**What a boundary-residual lifting in the service would need** (theory-notes 3.1; not
-implemented, the service is unchanged). With `e = u_model - u` and the boundary residual `R_b`
-(the trace of `e`), pick a smooth extension `B R_b` into the domain -- in 1D the linear
-interpolant `(B R_b)(t, x) = R_b(t, xL) (xR - x)/L + R_b(t, xR) (x - xL)/L`. Then
-`v = e - B R_b` vanishes on the boundary and solves the error equation with homogeneous data
-and forcing `R - L(B R_b)`, initial value `R_0 - (B R_b)(t0, .)`; the energy estimate for `v`
-has no boundary term and keeps the dissipation (Friedrichs decay `2 k / C_F^2`,
-`C_F = L/pi`), and `||e|| <= ||v|| + ||B R_b||`. The bound becomes linear in `R_b` instead of
-its square root. The service would need: (1) `R_b` as a function of time on each face (it has it
-at the plan's boundary time nodes, which coincide with the interior time nodes of a tensor
-Gauss plan); (2) its time derivative `d/dt R_b` -- a new residual component
-(`boundary_t = u_model_t - g_t` at the boundary nodes, exact from the client's network) or a
-`heuristic` differentiation of the time interpolant; (3) `L(B R_b) = d_t B R_b + a d_x B R_b
-- k d_xx B R_b + c B R_b` at the interior nodes (`d_xx B R_b = 0` for the linear lifting), which
-it can form itself from (1)-(2) and the plan geometry, replacing `||R||^2` by
-`||R - L(B R_b)||^2` at each time node; (4) the additive term `||B R_b(t)||` (computable) and
-the modified initial residual; (5) for nonlinear families (Burgers, semilinear) the
-nonlinearity evaluated at `v + B R_b` gives cross terms bounded with `sup |u|`,
-`sup |u_model|` and `sup |B R_b|`, i.e. the rate gains `sup |d_x B R_b|` and the rigor stays
-as for the other residual terms. No new regularity of the exact solution is needed for the
-linear family: the gradient bounds `sup_abs_u_x`, `sup_abs_model_u_x` would no longer enter."""
+LIFTING = """**How the lifting works** (docs/theory/advection-diffusion.md, "Boundary lifting").
+With `e = u_model - u` and the boundary residual `r` at the ends `a, b`, the service subtracts
+the linear interpolant `B r = r_a(t) (b - x)/L + r_b(t) (x - a)/L`; `v = e - B r` has zero trace,
+solves the error equation with forcing `R - L B r` and initial value `R_0 - B r(t0)`, and its
+energy estimate has no boundary term and keeps the Friedrichs decay `2 k (pi/L)^2`. Then
+`||e|| <= ||v|| + ||B r||`. `||B r||`, `||d_t B r||` and `||L B r||` are closed forms in
+`r_a, r_b` and their time derivatives (`d_xx B r = 0`), so the boundary residual enters the
+bound linearly instead of through its square root, and the gradient bounds `sup_abs_u_x`,
+`sup_abs_model_u_x` no longer enter. The client asks the plan for the optional component
+`boundary_t` and sends `d/dt (u_model - g)` there (here: the network's exact `u_t` minus the
+complex-step derivative of the data); the service assembles both estimates and reports the
+smaller.
+
+**Why the target of 10 is still missed for the linear family.** After the lifting the boundary
+is no longer the issue: the interior residual of the lifted error, `(||R|| + ||L B r||)^2 /
+lambda` propagated by Gronwall, is 98-99 % of `||v||^2`, and `||B r||` adds 10-20 % of the
+final-time bound. The remaining factor is the energy estimate itself: it measures the PINN
+residual in `L2`, while the heat operator damps the high-frequency part of that residual
+(what a trained network leaves behind) before it becomes error; only a weaker (`H^-1`, or
+duality-weighted) norm of the residual would see that, and the service does not offer one for
+this family. The lifting never loosens a bound: the flux estimate is assembled too and the
+smaller is reported."""

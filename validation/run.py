@@ -48,9 +48,12 @@ class Results:
     hard: list[tuple[Outcome, Outcome]]
     sweeps: list[Sweep]
     service: str
+    # (flux estimate, suite certificate) for the problems offered the boundary lifting
+    lifting: list[tuple[Outcome, Outcome]] = field(default_factory=list)
 
     def all(self) -> list[Outcome]:
         out = [*self.suite, *self.variants, *(h for _, h in self.hard)]
+        out += [before for before, _ in self.lifting]
         for s in self.sweeps:
             out += [*s.outcomes, *s.extra]
             out += [o for _, o in s.beyond if isinstance(o, Outcome)]
@@ -114,8 +117,8 @@ def correlate(api: Api, sweep: Sweep) -> None:
         }
         sweep.correlation_source = "POST /v1/studies (Pearson on log10 values, Spearman on ranks)"
         return
-    b = np.log10([o.bound("l2_space_time") for o in rows])
-    e = np.log10([o.true_space_time for o in rows])
+    b = np.log10([o.bound("l2_space_time") or math.nan for o in rows])
+    e = np.log10([o.true_space_time or math.nan for o in rows])
     sweep.correlation = {
         "pearson_r": float(stats.pearsonr(b, e).statistic) if len(rows) >= 3 else None,
         "spearman_rho": float(stats.spearmanr(b, e).statistic) if len(rows) >= 3 else None,
@@ -163,6 +166,13 @@ def run_all(api: Api, service: str) -> Results:
     suite = [_one(api, p) for p in vp.suite()]
     _log("tightening variants (same networks, other regularity):")
     variants = [_one(api, p, variant=v) for p in vp.suite() for v in p.variants]
+    _log("boundary lifting off (the flux estimate alone), for the before/after comparison:")
+    lifting = []
+    for o in suite:
+        if o.lifted:
+            before = _one(api, o.problem, lifting=False)
+            before.variant = "no lifting"
+            lifting.append((before, o))
     _log("hard-constrained boundary conditions:")
     soft = {o.problem.key: o for o in suite}
     hard = [(soft[k], _one(api, hp)) for k, hp in vp.hard_constrained().items()]
@@ -217,7 +227,7 @@ def run_all(api: Api, service: str) -> Results:
         math.pi / 2,
     )
     sweeps += [bsweep, tsweep]
-    return Results(suite, variants, hard, sweeps, service)
+    return Results(suite, variants, hard, sweeps, service, lifting)
 
 
 def main(argv: list[str] | None = None) -> int:

@@ -14,7 +14,7 @@ import subprocess
 import sys
 import tempfile
 import time
-from collections.abc import Iterator, Mapping
+from collections.abc import Iterator, Mapping, Sequence
 from pathlib import Path
 from typing import Any, Protocol
 
@@ -30,7 +30,9 @@ class ServiceError(RuntimeError):
 
 class Api(Protocol):
     def problem(self, problem: Mapping[str, Any]) -> dict[str, Any]: ...
-    def plan(self, problem_id: str, points: Mapping[str, int]) -> dict[str, Any]: ...
+    def plan(
+        self, problem_id: str, points: Mapping[str, int], optional: Sequence[str] = ()
+    ) -> dict[str, Any]: ...
     def certify(
         self,
         problem_id: str,
@@ -64,8 +66,16 @@ class RawApi:
     def problem(self, problem: Mapping[str, Any]) -> dict[str, Any]:
         return self._post("/v1/problems", {"problem": problem}, (200, 201))
 
-    def plan(self, problem_id: str, points: Mapping[str, int]) -> dict[str, Any]:
-        body = {"problem_id": problem_id, "rule": "gauss-legendre", "points": dict(points)}
+    def plan(
+        self, problem_id: str, points: Mapping[str, int], optional: Sequence[str] = ()
+    ) -> dict[str, Any]:
+        body: dict[str, Any] = {
+            "problem_id": problem_id,
+            "rule": "gauss-legendre",
+            "points": dict(points),
+        }
+        if optional:
+            body["optional_components"] = list(optional)
         return self._post("/v1/plans", body, (200, 201))
 
     def certify(
@@ -112,7 +122,11 @@ class ClientApi:
         out: dict[str, Any] = self.client.problem(dict(problem)).model_dump(mode="json")
         return out
 
-    def plan(self, problem_id: str, points: Mapping[str, int]) -> dict[str, Any]:
+    def plan(
+        self, problem_id: str, points: Mapping[str, int], optional: Sequence[str] = ()
+    ) -> dict[str, Any]:
+        if optional:  # the client's plan() has no optional components: plain JSON
+            return self.raw.plan(problem_id, points, optional)
         out: dict[str, Any] = (
             self.client.plan(problem_id, points=dict(points)).to_response().model_dump(mode="json")
         )

@@ -65,11 +65,13 @@ class Net(nn.Module):
         self.out_scale = float(cfg.out_scale)
         self.problem = problem
         for layer in self.layers:
+            assert isinstance(layer, nn.Linear)
             nn.init.xavier_normal_(layer.weight)
             nn.init.zeros_(layer.bias)
 
     def forward(self, pts: torch.Tensor) -> torch.Tensor:
-        z = (pts - self.shift) / self.scale
+        shift, scale = self.get_buffer("shift"), self.get_buffer("scale")
+        z = (pts - shift) / scale
         for layer in self.layers[:-1]:
             z = torch.tanh(layer(z))
         u = self.out_scale * self.layers[-1](z)
@@ -142,12 +144,13 @@ def losses(net: Net, pts: dict[str, torch.Tensor]) -> dict[str, torch.Tensor]:
         out["bc"] = (net(pts["bc"]) - pts["bc_val"]).pow(2).mean()
         data = data + out["bc"]
     out["total"] = pde + net.problem.train.w_data * data
-    return out  # type: ignore[return-value]
+    return out
 
 
 def to_mlp(net: Net, meta: dict[str, Any]) -> MLP:
-    ws = [layer.weight.detach().numpy().copy() for layer in net.layers]
-    bs = [layer.bias.detach().numpy().copy() for layer in net.layers]
+    linear = [layer for layer in net.layers if isinstance(layer, nn.Linear)]
+    ws = [layer.weight.detach().numpy().copy() for layer in linear]
+    bs = [layer.bias.detach().numpy().copy() for layer in linear]
     shift, scale = _scaling(net.problem)
     m = len(net.problem.outputs)
     out = None

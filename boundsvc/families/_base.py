@@ -117,12 +117,38 @@ class EnergyInequality:
     @classmethod
     def for_steady(cls, steady: SteadyBound) -> EnergyInequality:
         """A carrier of a steady bound's constants, warnings and data checks."""
-        return cls(base_rate=Rate(constant=0.0), initial=0.0,
-                   initial_info=SourceInfo("none", "", "", "proven"), residual=None,
-                   residual_info=None, constants=list(steady.constants),
-                   warnings=list(steady.warnings),
-                   failed_hypotheses=list(steady.failed_hypotheses))
+        return cls(
+            base_rate=Rate(constant=0.0),
+            initial=0.0,
+            initial_info=SourceInfo("none", "", "", "proven"),
+            residual=None,
+            residual_info=None,
+            constants=list(steady.constants),
+            warnings=list(steady.warnings),
+            failed_hypotheses=list(steady.failed_hypotheses),
+        )
+
     squared: bool = True
+    # ``||e(t)|| <= sqrt(Y(t)) + norm_addition(t)`` (a lifting, triangle inequality); ``None``
+    # when Y bounds the error itself
+    norm_addition: NormAddition | None = None
+    # other valid inequalities for the same certificate: each is assembled and the one with
+    # the smallest space-time bound is reported (``label`` names an inequality in warnings)
+    alternatives: list[EnergyInequality] = field(default_factory=list)
+    label: str = ""
+
+
+@dataclass(frozen=True)
+class NormAddition:
+    """A norm added to the bound by the triangle inequality, ``||e|| <= ||v|| + ||b||``.
+
+    ``profile[k]`` is ``||b(t_k)||`` at the Gronwall output times of the plan's time grid
+    (:func:`boundsvc.gronwall.output_times`), ``space_time`` is ``||b||`` over space-time.
+    """
+
+    profile: FloatArray
+    space_time: float
+    info: SourceInfo
 
 
 @dataclass(frozen=True)
@@ -157,6 +183,11 @@ class Classified(ABC):
     def components(self) -> list[str]:
         """Residual components the theorem needs (plan component names, in wire order)."""
 
+    def optional_components(self) -> list[str]:
+        """Components a plan may add on request (``optional_components`` of ``POST /v1/plans``)
+        that the theorem uses when the client sends them (e.g. ``boundary_t``)."""
+        return []
+
     @abstractmethod
     def requirements(self) -> list[Requirement]:
         """Regularity inputs that are always needed."""
@@ -176,6 +207,16 @@ class Classified(ABC):
     @abstractmethod
     def energy_inequality(self, inputs: CertifyInputs) -> EnergyInequality:
         """The energy inequality for given residuals and regularity values."""
+
+    def residual_scale(self) -> float:
+        """Factor from the typed interior residual to the theorem's residual.
+
+        The contract's interior residual is ``lhs - rhs`` of the equation *as typed*; a family
+        that states its theorem for the equation divided by the coefficient of the time
+        derivative (``3*u_t = 0.3*u_xx`` is ``u_t = 0.1*u_xx``) returns ``1/coefficient``
+        here and :func:`boundsvc.certify.certify` scales the interior residual by it.
+        """
+        return 1.0
 
     def steady_bound(self, inputs: CertifyInputs) -> SteadyBound:
         """For steady problems: the bound itself (families of steady problems override)."""

@@ -26,6 +26,7 @@ from dataclasses import dataclass
 
 import numpy as np
 import sympy
+from scipy.interpolate import BarycentricInterpolator
 
 from boundsvc.errors import RegularityError
 from boundsvc.expr import Namespace, to_latex, to_text
@@ -37,6 +38,7 @@ from boundsvc.families._base import (
     EnergyInequality,
     Family,
     FloatArray,
+    NormAddition,
     Requirement,
     Rigor,
     SourceInfo,
@@ -335,6 +337,96 @@ def periodic_terms(
     return {name: term}
 
 
+# ------------------------------------------------------------ boundary lifting (1-D Dirichlet)
+LIFTING_REFERENCE = (
+    "Lifting of Dirichlet data (subtract an extension of the boundary values, solve with zero "
+    "trace): L. C. Evans, Partial Differential Equations, 2nd ed., AMS 2010, sec. 5.5 and 7.1; "
+    "J.-L. Lions, E. Magenes, Non-Homogeneous Boundary Value Problems and Applications I, "
+    "Springer 1972, ch. 1 and 4; residual bounds in semigroup form with a lifted boundary "
+    "residual: B. Hillebrecht, B. Unger, arXiv 2210.03426 (2022)"
+)
+LIFTING_COMPONENT = "boundary_t"
+# boundary_t is refused (the flux estimate is used) when it differs from the derivative of the
+# time interpolant of the boundary residual by more than this share of their magnitude
+LIFTING_RATE_TOLERANCE = 0.05
+
+
+@dataclass(frozen=True)
+class FaceTraces:
+    """The boundary residual ``r`` and its time derivative ``r_t`` at the two ends of a 1-D
+    interval (``low`` at ``x = a``, ``high`` at ``x = b``), at the plan's time nodes."""
+
+    low: FloatArray
+    high: FloatArray
+    low_t: FloatArray
+    high_t: FloatArray
+
+
+def face_traces(plan: Plan, residuals: Mapping[str, FloatArray]) -> FaceTraces | str:
+    """The traces of a 1-D plan's ``boundary`` and ``boundary_t`` residuals per face and time
+    node, or the reason why the samples do not determine them."""
+    bnd = plan.components.get("boundary")
+    rate = plan.components.get(LIFTING_COMPONENT)
+    grid = plan.time
+    if bnd is None or rate is None or LIFTING_COMPONENT not in residuals or grid is None:
+        return f"the plan or the residuals have no {LIFTING_COMPONENT!r} component"
+    if bnd.face_index is None or bnd.time_index is None or len(bnd.faces) != 2:
+        return "the boundary component does not consist of the two end points"
+    if rate.points.shape != bnd.points.shape or not np.array_equal(rate.points, bnd.points):
+        return f"the {LIFTING_COMPONENT!r} points are not the boundary points"
+    n_t = grid.size
+    key = bnd.face_index * n_t + bnd.time_index
+    if np.any(np.bincount(key, minlength=2 * n_t) != 1):
+        return "the boundary samples are not one point per end and time node"
+    r = np.zeros((2, n_t))
+    r_t = np.zeros((2, n_t))
+    r[bnd.face_index, bnd.time_index] = residuals["boundary"]
+    r_t[bnd.face_index, bnd.time_index] = residuals[LIFTING_COMPONENT]
+    low = next(f for f, face in enumerate(bnd.faces) if face.side == "low")
+    high = 1 - low
+    return FaceTraces(r[low], r[high], r_t[low], r_t[high])
+
+
+def lifting_norm(length: float, p: FloatArray, q: FloatArray) -> FloatArray:
+    """``||p (b - x)/L + q (x - a)/L||_{L2(a, b)} = sqrt(L/3 (p^2 + p q + q^2))`` (exact)."""
+    return np.sqrt(np.maximum(length / 3.0 * (p * p + p * q + q * q), 0.0))
+
+
+def at_output_times(grid: TimeGrid, values: FloatArray) -> FloatArray:
+    """Node values (rows: time nodes) at the Gronwall output times, interpolated exactly as
+    the propagation interpolates its forcing (panel polynomial, or piecewise linear)."""
+    times, is_node, panel_of = output_times(grid)
+    out = np.zeros((times.size, values.shape[1]))
+    if grid.mode == "linear":
+        for k in range(values.shape[1]):
+            out[:, k] = np.interp(times, grid.nodes, values[:, k])
+    else:
+        n = grid.nodes_per_panel
+        for m in range(grid.edges.size - 1):
+            sel = panel_of == m
+            interp = BarycentricInterpolator(
+                grid.nodes[m * n : (m + 1) * n], values[m * n : (m + 1) * n]
+            )
+            out[sel] = interp(times[sel])
+    node_rows = np.flatnonzero(is_node)
+    out[node_rows] = values  # the nodes themselves, without interpolation round-off
+    return out
+
+
+def interpolant_rate(grid: TimeGrid, values: FloatArray) -> FloatArray:
+    """Time derivative at the nodes of the same interpolant (to check ``boundary_t``)."""
+    if grid.mode == "linear":
+        return np.stack([np.gradient(values[:, k], grid.nodes) for k in range(values.shape[1])], 1)
+    n = grid.nodes_per_panel
+    out = np.zeros_like(values)
+    for m in range(grid.edges.size - 1):
+        xs = grid.nodes[m * n : (m + 1) * n]
+        out[m * n : (m + 1) * n] = BarycentricInterpolator(
+            xs, values[m * n : (m + 1) * n]
+        ).derivative(xs)
+    return out
+
+
 # ---------------------------------------------------------------------------- the family
 class AdvectionDiffusionFamily(Family):
     """The linear advection-diffusion-reaction family (constant or variable coefficients)."""
@@ -593,6 +685,14 @@ class ClassifiedADR(Classified):
                     names.append(f"periodic_{a}")
         return names
 
+    def optional_components(self) -> list[str]:
+        """``boundary_t`` (d/dt of the boundary residual) enables the boundary lifting on a
+        1-D Dirichlet interval."""
+        domain = self.problem.domain
+        if domain.dimension == 1 and domain.dirichlet_axes:
+            return [LIFTING_COMPONENT]
+        return []
+
     def requirements(self) -> list[Requirement]:
         reqs = []
         for a in self.problem.domain.dirichlet_axes:
@@ -823,6 +923,9 @@ class ClassifiedADR(Classified):
             )
         return out
 
+    def residual_scale(self) -> float:
+        return 1.0 / float(self.alpha)
+
     # -- the inequality --------------------------------------------------------------------
     def energy_inequality(self, inputs: CertifyInputs) -> EnergyInequality:
         plan, res, reg = inputs.plan, inputs.residuals, inputs.regularity
@@ -865,7 +968,7 @@ class ClassifiedADR(Classified):
         rate_rigor: Rigor = "assumed" if fried_axes else "proven"
         constants[0] = constants[0].with_value(float(np.max(values)), rate_rigor)
         constants.extend(self._rate_constants(edges, values, treatments, q, fried_axes))
-        return EnergyInequality(
+        flux = EnergyInequality(
             base_rate=rate,
             initial=y0,
             initial_info=SourceInfo(
@@ -891,6 +994,161 @@ class ClassifiedADR(Classified):
             failed_hypotheses=data_contradictions(self.problem, plan, res, reg),
             rate_rigor=rate_rigor,
             inputs={"rate_max": float(np.max(values)), "rate_min": float(np.min(values))},
+        )
+        if LIFTING_COMPONENT in res:
+            flux.label = "boundary flux estimate"
+            lifted = self._lifted_inequality(inputs, y0, residual, flux.failed_hypotheses)
+            if isinstance(lifted, str):
+                flux.warnings.append(f"boundary lifting not used: {lifted}")
+            else:
+                flux.alternatives.append(lifted)
+        return flux
+
+    # -- the boundary lifting (1-D Dirichlet) ------------------------------------------------
+    def _lifted_inequality(
+        self,
+        inputs: CertifyInputs,
+        y0: float,
+        residual: FloatArray,
+        failed: list[str],
+    ) -> EnergyInequality | str:
+        """The estimate for ``v = e - B r`` (zero trace) plus ``||B r||``: see the section
+        "Boundary lifting" of docs/theory/advection-diffusion.md, steps L1-L8."""
+        plan = inputs.plan
+        grid = plan.time
+        assert grid is not None
+        if not self.optional_components():
+            return "the lifting is implemented for one space axis with Dirichlet ends"
+        traces = face_traces(plan, inputs.residuals)
+        if isinstance(traces, str):
+            return traces
+        axis = self.problem.domain.dirichlet_axes[0]
+        length = self.problem.domain.length(axis)
+        r = np.stack([traces.low, traces.high], axis=1)
+        r_t = np.stack([traces.low_t, traces.high_t], axis=1)
+        check = interpolant_rate(grid, r)
+        scale = max(float(np.max(np.abs(check))), float(np.max(np.abs(r_t))))
+        gap = float(np.max(np.abs(check - r_t)))
+        if gap > LIFTING_RATE_TOLERANCE * scale + 1e-300:
+            return (
+                f"{LIFTING_COMPONENT} differs from the time derivative of the interpolated "
+                f"boundary residual by {gap:.3g} (largest magnitude {scale:.3g}); it must be "
+                "d/dt (u_model - g) at the boundary points"
+            )
+        exact_axes = (axis,) if self.k_inf[axis] > 0 else ()
+        rate, edges, values, treatments, q = self._rate(grid, exact_axes)
+        # L2: ||B r||, ||d_t B r|| at the time nodes (closed forms, exact)
+        b_norm = lifting_norm(length, traces.low, traces.high)
+        bt_norm = lifting_norm(length, traces.low_t, traces.high_t)
+        # L3-L4: ||L B r|| (d_xx B r = 0: the diffusion coefficient does not enter)
+        a_x, c = self.a_expr[axis], self.c_expr
+        jump = (traces.high - traces.low) / length
+        if not a_x.free_symbols and not c.free_symbols:
+            a0, c0 = float(a_x), float(c)
+            lb_norm = lifting_norm(
+                length,
+                traces.low_t + c0 * traces.low + a0 * jump,
+                traces.high_t + c0 * traces.high + a0 * jump,
+            )
+            lb_text = "||L B r|| = sqrt(L/3 (P^2 + P Q + Q^2)), P, Q = r_t + c r + a (r_b - r_a)/L"
+        else:
+            a_sup = certified_sup(sympy.Abs(a_x), self.box) if a_x.free_symbols else abs(float(a_x))
+            c_sup = certified_sup(sympy.Abs(c), self.box) if c.free_symbols else abs(float(c))
+            lb_norm = bt_norm + a_sup * np.abs(jump) * math.sqrt(length) + c_sup * b_norm
+            lb_text = (
+                f"||L B r|| <= ||d_t B r|| + sup|a| |r_b - r_a|/sqrt(L) + sup|c| ||B r||, "
+                f"certified sup|a| = {a_sup:.6g}, sup|c| = {c_sup:.6g}"
+            )
+        b_out = at_output_times(grid, r)
+        b_profile = lifting_norm(length, b_out[:, 0], b_out[:, 1])
+        b_space_time = math.sqrt(float(np.dot(grid.weights, np.square(b_norm))))
+        # L5-L6: v(t0) = R_0 - B r(t0), L v = R - L B r
+        initial = (math.sqrt(max(y0, 0.0)) + float(b_profile[0])) ** 2
+        forcing_v = np.square(np.sqrt(np.maximum(residual, 0.0)) + lb_norm)
+        fried = [a for a, tr in treatments.items() if tr.friedrichs]
+        constants = [c_.with_value(None) for c_ in self.constants()]
+        constants[0] = constants[0].with_value(float(np.max(values)), "proven")
+        constants.extend(self._rate_constants(edges, values, treatments, q, ()))
+        constants.append(self._lifting_constant(length, lb_text, b_norm, lb_norm, fried))
+        return EnergyInequality(
+            base_rate=rate,
+            initial=initial,
+            initial_info=SourceInfo(
+                "initial residual of the lifted error",
+                "(||R_0|| + ||B r(t0)||)^2",
+                "||v(t0)|| <= ||u_model(., t0) - u0|| + sqrt(L/3 (r_a^2 + r_a r_b + r_b^2))(t0)",
+                "heuristic",
+                "quadrature of the initial residual; r(t0) from the time interpolant of the "
+                "boundary residual",
+            ),
+            residual=forcing_v,
+            residual_info=SourceInfo(
+                "interior residual of the lifted error",
+                "(||R|| + ||L B r||)^2/lambda",
+                "int_t0^t e^{A(s,t)} (||R(s)|| + ||L B r(s)||)^2 / lambda ds",
+                "heuristic",
+                "quadrature of the interior residual; ||L B r|| in closed form from the "
+                "boundary residual and boundary_t at the time nodes",
+            ),
+            constants=constants,
+            warnings=[
+                "boundary lifting: e = v + B r with B r the linear interpolant of the boundary "
+                "residual between the ends; v has zero trace, so the estimate for v has no "
+                "boundary term and keeps the Friedrichs decay, and ||e|| <= ||v|| + ||B r||. "
+                "It rests on boundary_t = d/dt (u_model - g) at the boundary points."
+            ],
+            failed_hypotheses=list(failed),
+            rate_rigor="proven",
+            inputs={"rate_max": float(np.max(values)), "rate_min": float(np.min(values))},
+            norm_addition=NormAddition(
+                profile=b_profile,
+                space_time=b_space_time,
+                info=SourceInfo(
+                    "boundary lifting",
+                    "||B r(t)||",
+                    "sqrt(L/3 (r_a(t)^2 + r_a(t) r_b(t) + r_b(t)^2))",
+                    "heuristic",
+                    "closed form (exact) at the time nodes; between them the time interpolant "
+                    "of the boundary residual, and the time quadrature for the space-time norm",
+                ),
+            ),
+            label="boundary lifting",
+        )
+
+    def _lifting_constant(
+        self,
+        length: float,
+        lb_text: str,
+        b_norm: FloatArray,
+        lb_norm: FloatArray,
+        fried: Sequence[str],
+    ) -> ConstantInfo:
+        return ConstantInfo(
+            name="boundary lifting",
+            symbol="B r",
+            expression="B r(x, t) = r_a(t) (b - x)/L + r_b(t) (x - a)/L",
+            latex=r"B r = r_a(t)\,\frac{b-x}{L} + r_b(t)\,\frac{x-a}{L}",
+            derivation=(
+                "e = u_model - u has the trace r (boundary residual) at x = a, b; v = e - B r "
+                "vanishes at both ends for every t.",
+                "L v = R - L B r, v(t0) = R_0 - B r(t0).",
+                f"||B r||^2 = L/3 (r_a^2 + r_a r_b + r_b^2) exactly (L = {length:.6g}); the same "
+                "for d_t B r with r_t = boundary_t.",
+                f"d_xx B r = 0, so the diffusion does not enter; {lb_text}.",
+                "Energy estimate for v without boundary terms"
+                + (
+                    f"; the Friedrichs decay along {', '.join(fried)} holds (zero trace)."
+                    if fried
+                    else "."
+                ),
+                "Young with (||R|| + ||L B r||)^2/lambda, Gronwall, then ||e|| <= ||v|| + ||B r|| "
+                "at each time and by Minkowski in space-time.",
+                f"largest ||B r|| at the nodes {float(np.max(b_norm)):.6g}, largest "
+                f"||L B r|| {float(np.max(lb_norm)):.6g}",
+            ),
+            reference=LIFTING_REFERENCE,
+            value=float(np.max(b_norm)),
+            rigor="proven",
         )
 
     def _rate_constants(
