@@ -5,16 +5,21 @@ it without pulling the server's scientific stack.
 """
 
 from api_schemas._certificate import (
+    ArchiveMetadata,
     Bound,
     Certificate,
     CertificatePage,
     CertificateRequest,
     CertificateSummary,
     Constant,
+    Difference,
     Provenance,
     QuadratureOptions,
+    RecomputeError,
     Term,
     TimeProfile,
+    VerificationReport,
+    VerifyRequest,
 )
 from api_schemas._common import ModelInfo, ProblemDetails, ProblemFieldError
 from api_schemas._family import FamilyInfo, FamilyList
@@ -29,6 +34,7 @@ from api_schemas._problem import (
 from api_schemas._residuals import EncodedArray, ResidualValues
 
 __all__ = [
+    "ArchiveMetadata",
     "Bound",
     "BoundaryKind",
     "Certificate",
@@ -36,6 +42,7 @@ __all__ = [
     "CertificateRequest",
     "CertificateSummary",
     "Constant",
+    "Difference",
     "EncodedArray",
     "FamilyInfo",
     "FamilyList",
@@ -51,8 +58,11 @@ __all__ = [
     "ProblemSpec",
     "Provenance",
     "QuadratureOptions",
+    "RecomputeError",
     "RegularityRequirement",
     "ResidualValues",
     "Term",
     "TimeProfile",
+    "VerificationReport",
+    "VerifyRequest",
 ]

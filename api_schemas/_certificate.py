@@ -48,6 +48,12 @@ class CertificateRequest(BaseModel):
     residuals: dict[str, ResidualValues] = Field(default_factory=dict)
     model: ModelInfo | None = None
     quadrature: QuadratureOptions | None = None
+    archive: bool | None = Field(
+        default=None,
+        description="Keep a compressed copy of the decoded residuals so that the certificate "
+        "can be re-verified later (POST /v1/certificates/{id}/verify); null: the deployment's "
+        "default (BOUNDSVC_ARCHIVE_RESIDUALS). Not part of the certificate id.",
+    )
 
     @model_validator(mode="after")
     def _exactly_one(self) -> CertificateRequest:
@@ -156,3 +162,81 @@ class CertificatePage(BaseModel):
 
     items: list[CertificateSummary]
     next_cursor: str | None = None
+
+
+class ArchiveMetadata(BaseModel):
+    """Body of ``GET /v1/certificates/{id}/archive``: the stored residual archive."""
+
+    certificate_id: str
+    codec: str
+    sha256: str = Field(description="SHA-256 of the archive bytes as stored")
+    size_bytes: int
+    created_at: str
+
+
+class VerifyRequest(BaseModel):
+    """Optional body of ``POST /v1/certificates/{id}/verify``."""
+
+    model_config = ConfigDict(extra="forbid")
+
+    rtol: float = Field(
+        default=1e-12,
+        ge=0.0,
+        le=1.0,
+        description="numbers that differ by at most rtol * max(|stored|, |recomputed|) count "
+        "as equal (0: exact). The default absorbs the last-digit noise of floating-point "
+        "sums, which depends on memory alignment; byte_identical tells exact equality.",
+    )
+
+
+class Difference(BaseModel):
+    """One field where the stored certificate and its recomputation disagree."""
+
+    path: str = Field(description="e.g. 'bound.l2_space_time', 'terms[2].value'; '$' is the root")
+    kind: Literal["changed", "added", "removed"] = Field(
+        description="changed: both have the field; added: only the recomputation; "
+        "removed: only the stored certificate"
+    )
+    stored: Any = None
+    recomputed: Any = None
+
+
+class RecomputeError(BaseModel):
+    """Why the running version refused to recompute (its problem+json code and detail)."""
+
+    code: str
+    detail: str
+    field: str | None = None
+
+
+class VerificationReport(BaseModel):
+    """Body of ``POST /v1/certificates/{id}/verify``."""
+
+    certificate_id: str
+    matches: bool = Field(
+        description="the recomputation equals the stored certificate outside the ignored fields"
+    )
+    byte_identical: bool = Field(description="the two canonical documents are the same bytes")
+    # stored_* fields are copied from the stored document as they are (Any: a document
+    # altered in the database is reported, not refused)
+    stored_status: Any = None
+    recomputed_status: str | None = None
+    stored_bound: Any = Field(default=None, description="'bound' as stored")
+    recomputed_bound: dict[str, float | None] | None = None
+    recomputed_id: str | None = Field(
+        default=None,
+        description="the id the running version gives these inputs (it hashes the version)",
+    )
+    stored_service_version: Any = None
+    running_service_version: str
+    differences: list[Difference]
+    differences_total: int = Field(description="all differences (the list stops at 100)")
+    max_relative_difference: float = Field(
+        description="largest |stored - recomputed| / max(|stored|, |recomputed|) over the "
+        "numbers compared, within rtol or not (0 when all are equal)"
+    )
+    ignored: list[str] = Field(description="paths left out of the comparison")
+    rtol: float
+    error: RecomputeError | None = None
+    archive: ArchiveMetadata
+    verified_at: str

@@ -6,7 +6,9 @@ Policy
   :meth:`boundsvc.store.Store.verify_api_key`; the key's project restricts what it sees
   (:class:`~boundsvc.api.deps.Caller`).  A malformed, unknown or revoked token is a
   401 ``unauthorized`` with ``WWW-Authenticate: Bearer``, whatever the mode.
-* Scopes: ``GET``/``HEAD``/``OPTIONS`` need ``read``; other methods need ``write``; key
+* Scopes: ``GET``/``HEAD``/``OPTIONS`` need ``read``, and so does re-verification
+  (``POST /v1/certificates/{id}/verify`` recomputes and stores nothing); other methods need
+  ``write``; key
   management (``/v1/keys``) and ``/metrics`` (counts over every project) need ``admin``.
   Scopes do not imply each other.  A missing scope is a 403 ``forbidden``.
 * Anonymous requests are accepted (as the open project, every scope) **only** while no
@@ -23,6 +25,7 @@ from __future__ import annotations
 import enum
 import ipaddress
 import logging
+import re
 import threading
 import time
 from collections.abc import Callable
@@ -72,6 +75,8 @@ LOGIN_PATHS: frozenset[str] = frozenset(
 KEY_PRESENCE_TTL_SECONDS = 5.0
 
 _READ_METHODS = frozenset({"GET", "HEAD", "OPTIONS"})
+#: POSTs that only read: re-verification recomputes a certificate and stores nothing.
+_READ_ONLY_POSTS = re.compile(r"/v1/certificates/[^/]+/verify")
 _ALL_SCOPES = frozenset(API_SCOPES)
 
 
@@ -99,7 +104,11 @@ def required_scope(method: str, path: str) -> str | None:
         return None
     if any(path == p or path.startswith(p + "/") for p in ADMIN_PREFIXES):
         return "admin"
-    return "read" if method.upper() in _READ_METHODS else "write"
+    if method.upper() in _READ_METHODS:
+        return "read"
+    if method.upper() == "POST" and _READ_ONLY_POSTS.fullmatch(path):
+        return "read"
+    return "write"
 
 
 def client_address(scope: Scope) -> str:

@@ -34,6 +34,11 @@ SERVICE_CODES: dict[str, tuple[int, str]] = {
     "residual_dtype": (422, "An unsupported dtype was sent."),
     "certificate_not_found": (404, "No certificate with this id is visible to the caller."),
     "certificate_conflict": (409, "A different certificate is stored under the same id."),
+    "not_archived": (409, "The certificate has no residual archive, so it cannot be "
+                          "re-verified (certify with archive: true)."),
+    "archive_not_found": (404, "The certificate exists but has no residual archive."),
+    "archive_corrupt": (409, "The stored residual archive fails its SHA-256 or cannot be "
+                             "decoded; the certificate cannot be re-verified."),
     "invalid_cursor": (400, "The pagination cursor is malformed."),
     "invalid_query": (422, "A query parameter is malformed."),
     "not_found": (404, "No such route."),

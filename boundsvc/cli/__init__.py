@@ -9,9 +9,10 @@ import argparse
 import sys
 from collections.abc import Sequence
 
-from boundsvc.cli import db, gate, keys, remote, report, serve
+from boundsvc.cli import db, gate, keys, remote, report, serve, verify
 
-_MODULES = [serve, db, keys, remote, gate, report]  # report after remote: it extends its command
+# report after remote: it extends its command
+_MODULES = [serve, db, keys, remote, gate, verify, report]
 
 
 def build_parser() -> argparse.ArgumentParser:

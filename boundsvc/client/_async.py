@@ -13,6 +13,7 @@ from typing import Any
 import httpx
 
 from api_schemas import (
+    ArchiveMetadata,
     Certificate,
     CertificatePage,
     CertificateSummary,
@@ -20,6 +21,7 @@ from api_schemas import (
     FamilyList,
     PlanResponse,
     ProblemResponse,
+    VerificationReport,
 )
 from boundsvc.client._http import (
     DEFAULT_RETRY,
@@ -38,10 +40,12 @@ from boundsvc.client._http import (
     _path_id,
     as_retry_policy,
     base_headers,
+    call_archive,
     call_certify,
     call_list,
     call_plan,
     call_problem,
+    call_verify,
     error_from_response,
     parse_json_object,
     parse_model,
@@ -177,10 +181,11 @@ class AsyncBoundsvcClient:
         idempotent: bool = True,
         idempotency_key: str | None = None,
         progress: Progress | None = None,
+        archive: bool | None = None,
     ) -> Certificate:
         """See :meth:`BoundsvcClient.certify`."""
         call = call_certify(problem, plan, regularity, residuals, model, encoding, idempotent,
-                            idempotency_key, progress)
+                            idempotency_key, progress, archive)
         return parse_model(await self._send(call), Certificate, call)
 
     async def certificate(self, certificate_id: str) -> Certificate:
@@ -219,6 +224,17 @@ class AsyncBoundsvcClient:
         async for item in self.certificates(model=model, version=version, limit=1):
             return await self.certificate(item.id)
         return None
+
+    async def verify(self, certificate_id: str, *,
+                     rtol: float | None = None) -> VerificationReport:
+        """See :meth:`BoundsvcClient.verify`."""
+        call = call_verify(certificate_id, rtol)
+        return parse_model(await self._send(call), VerificationReport, call)
+
+    async def archive_info(self, certificate_id: str) -> ArchiveMetadata:
+        """See :meth:`BoundsvcClient.archive_info`."""
+        call = call_archive(certificate_id)
+        return parse_model(await self._send(call), ArchiveMetadata, call)
 
     async def report(self, certificate_id: str) -> Report:
         """See :meth:`BoundsvcClient.report`."""

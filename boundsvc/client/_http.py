@@ -10,7 +10,8 @@ Retry rules (the same for both clients):
 * retried: connection failures (refused, reset before an answer, connect timeout), HTTP 429
   (after its ``Retry-After``), 502, 503 and 504;
 * a ``POST`` is retried only when it carries an ``Idempotency-Key`` (the client makes one per
-  logical call when ``idempotent=True``), so the service can recognise the repeat;
+  logical call when ``idempotent=True``), so the service can recognise the repeat, or when it
+  has no effect (``verify`` recomputes and stores nothing);
 * a 409 ``idempotency_in_progress`` (the first attempt with that key still runs);
 * nothing else: a 4xx is an answer, and a read timeout means the service may still be working.
 """
@@ -36,6 +37,7 @@ import numpy.typing as npt
 from pydantic import BaseModel, ValidationError
 
 from api_schemas import (
+    ArchiveMetadata,
     Certificate,
     CertificatePage,
     CertificateSummary,
@@ -47,6 +49,7 @@ from api_schemas import (
     ProblemDetails,
     ProblemResponse,
     ProblemSpec,
+    VerificationReport,
 )
 from boundsvc import __version__
 from boundsvc.client.errors import BoundsvcClientError, ServiceUnavailable
@@ -197,10 +200,12 @@ class _Call:
     idempotency_key: str | None = None
     progress: Progress | None = None
     accept: str = "application/json"
+    #: a POST without effects on the service (retried like a GET)
+    retry_safe: bool = False
 
     @property
     def retry_allowed(self) -> bool:
-        return self.method == "GET" or self.idempotency_key is not None
+        return self.method == "GET" or self.retry_safe or self.idempotency_key is not None
 
     def headers(self) -> dict[str, str]:
         out = {"Accept": f"{self.accept}, application/problem+json",
@@ -344,6 +349,7 @@ def call_certify(
     idempotent: bool,
     idempotency_key: str | None,
     progress: Progress | None,
+    archive: bool | None = None,
 ) -> _Call:
     plan_id = plan.plan_id if isinstance(plan, Plan) else str(plan)
     body: dict[str, Any] = {**_problem_ref(problem), "plan_id": plan_id,
@@ -352,6 +358,8 @@ def call_certify(
     model_json = _model_json(model)
     if model_json is not None:
         body["model"] = model_json
+    if archive is not None:
+        body["archive"] = bool(archive)
     return _Call("POST", "/v1/certificates", _json_bytes(body),
                  idempotency_key=_idempotency(idempotent, idempotency_key), progress=progress)
 
@@ -364,6 +372,16 @@ def call_list(model: str | None, version: str | None, family: str | None, status
         if value is not None:
             params[key] = value
     return _Call("GET", "/v1/certificates", params=params)
+
+
+def call_verify(certificate_id: str, rtol: float | None) -> _Call:
+    cid = _path_id(certificate_id, "certificate id")
+    body = _json_bytes({"rtol": float(rtol)}) if rtol is not None else None
+    return _Call("POST", f"/v1/certificates/{cid}/verify", body, retry_safe=True)
+
+
+def call_archive(certificate_id: str) -> _Call:
+    return _Call("GET", f"/v1/certificates/{_path_id(certificate_id, 'certificate id')}/archive")
 
 
 def _path_id(value: str, what: str) -> str:
@@ -798,6 +816,7 @@ class BoundsvcClient:
         idempotent: bool = True,
         idempotency_key: str | None = None,
         progress: Progress | None = None,
+        archive: bool | None = None,
     ) -> Certificate:
         """Compute and store a certificate (``POST /v1/certificates``).
 
@@ -821,9 +840,12 @@ class BoundsvcClient:
             Use this key instead (to repeat a call across processes).
         progress : callable, optional
             ``progress(sent, total)`` in bytes while uploading.
+        archive : bool, optional
+            Keep the residuals on the service so that :meth:`verify` can recompute the
+            certificate later (``None``: the service's default).
         """
         call = call_certify(problem, plan, regularity, residuals, model, encoding, idempotent,
-                            idempotency_key, progress)
+                            idempotency_key, progress, archive)
         return parse_model(self._send(call), Certificate, call)
 
     def certificate(self, certificate_id: str) -> Certificate:
@@ -864,6 +886,24 @@ class BoundsvcClient:
         for item in self.certificates(model=model, version=version, limit=1):
             return self.certificate(item.id)
         return None
+
+    def verify(self, certificate_id: str, *, rtol: float | None = None) -> VerificationReport:
+        """Recompute a stored certificate from its residual archive with the service's
+        running version (``POST /v1/certificates/{id}/verify``; nothing is stored).
+
+        ``report.matches`` says whether it still holds; ``report.differences`` what changed.
+        ``rtol`` (default: the service's, 1e-12) is the relative tolerance for numbers. A
+        certificate without archive raises :class:`BoundsvcClientError` with code
+        ``not_archived``, a damaged archive ``archive_corrupt`` (both 409).
+        """
+        call = call_verify(certificate_id, rtol)
+        return parse_model(self._send(call), VerificationReport, call)
+
+    def archive_info(self, certificate_id: str) -> ArchiveMetadata:
+        """Codec, SHA-256 and size of a certificate's residual archive (code
+        ``archive_not_found`` if it has none)."""
+        call = call_archive(certificate_id)
+        return parse_model(self._send(call), ArchiveMetadata, call)
 
     def report(self, certificate_id: str) -> Report:
         """The rendered report of a certificate (``GET /v1/certificates/{id}/report``).

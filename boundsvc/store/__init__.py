@@ -1,4 +1,5 @@
-"""boundsvc persistence layer: certificates, problems, plans, archives, keys, studies.
+"""boundsvc persistence layer: certificates, problems, plans, archives (format in
+``_archive.py``), keys, studies.
 
 Open a store with :func:`open_store` (``sqlite:///./boundsvc.sqlite3`` or
 ``postgresql+psycopg://...``); manage the schema with :func:`upgrade`,
@@ -6,6 +7,12 @@ Open a store with :func:`open_store` (``sqlite:///./boundsvc.sqlite3`` or
 derive from :class:`StoreError`.  See ``docs/store.md``.
 """
 
+from ._archive import (
+    ARCHIVE_CODEC,
+    ArchiveContents,
+    decode_residual_archive,
+    encode_residual_archive,
+)
 from ._engine import SQLITE_BUSY_TIMEOUT_MS
 from ._errors import (
     ArchiveCorrupt,
@@ -30,6 +37,7 @@ from ._records import (
     API_SCOPES,
     ApiKeyRecord,
     ApiScope,
+    ArchiveInfo,
     CertificateCount,
     CertificatePage,
     CertificateSummary,
@@ -48,12 +56,15 @@ from ._repository import DEFAULT_PAGE_SIZE, MAX_PAGE_SIZE, Store, open_store
 
 __all__ = [
     "API_SCOPES",
+    "ARCHIVE_CODEC",
     "DEFAULT_PAGE_SIZE",
     "MAX_PAGE_SIZE",
     "SQLITE_BUSY_TIMEOUT_MS",
     "ApiKeyRecord",
     "ApiScope",
+    "ArchiveContents",
     "ArchiveCorrupt",
+    "ArchiveInfo",
     "CertificateConflict",
     "CertificateCount",
     "CertificatePage",
@@ -78,6 +89,8 @@ __all__ = [
     "StoredStudy",
     "UnknownReference",
     "current_revision",
+    "decode_residual_archive",
+    "encode_residual_archive",
     "head_revision",
     "open_store",
     "schema_status",

@@ -70,7 +70,8 @@ class StoreUnavailable(StoreError):
 
 
 class ArchiveCorrupt(StoreError):
-    """A stored residual archive no longer matches its recorded SHA-256 (HTTP 500)."""
+    """A stored residual archive fails its SHA-256 or cannot be decoded (HTTP 409,
+    code ``archive_corrupt``: the certificate cannot be re-verified)."""
 
 
 @contextmanager

@@ -10,6 +10,7 @@ __all__ = [
     "API_SCOPES",
     "ApiKeyRecord",
     "ApiScope",
+    "ArchiveInfo",
     "CertificateCount",
     "CertificatePage",
     "CertificateSummary",
@@ -97,6 +98,17 @@ class ResidualArchive:
     blob: bytes
     codec: str
     sha256: str
+    created_at: datetime
+
+
+@dataclass(frozen=True, slots=True)
+class ArchiveInfo:
+    """What is known about a stored archive without reading its blob."""
+
+    certificate_id: str
+    codec: str
+    sha256: str
+    size_bytes: int
     created_at: datetime
 
 

@@ -45,6 +45,7 @@ from ._records import (
     API_SCOPES,
     ApiKeyRecord,
     ApiScope,
+    ArchiveInfo,
     CertificateCount,
     CertificatePage,
     CertificateSummary,
@@ -467,6 +468,44 @@ class Store:
         if archive and hashlib.sha256(archive.blob).hexdigest() != archive.sha256:
             raise ArchiveCorrupt(f"residual archive of {certificate_id!r} fails its SHA-256")
         return archive
+
+    def archive_info(self, certificate_id: str, project: str | None = None) -> ArchiveInfo | None:
+        """Codec, SHA-256, size and time of the archive of ``certificate_id`` (blob not read).
+
+        Project-restricted like :meth:`get_archive`; None if there is no archive.
+        """
+        a = ResidualArchiveRow
+        stmt = select(a.certificate_id, a.codec, a.sha256, func.length(a.blob), a.created_at).where(
+            a.certificate_id == certificate_id
+        )
+        if project is not None:
+            stmt = stmt.join(CertificateRow, CertificateRow.id == a.certificate_id).where(
+                CertificateRow.project == project
+            )
+        with self._session(write=False) as session:
+            row = session.execute(stmt).one_or_none()
+        if row is None:
+            return None
+        cid, codec, digest, size, created = row
+        return ArchiveInfo(
+            certificate_id=cid,
+            codec=codec,
+            sha256=digest,
+            size_bytes=int(size or 0),
+            created_at=created,
+        )
+
+    def purge_archives(self, older_than: datetime) -> int:
+        """Delete residual archives stored before ``older_than`` (their certificates stay,
+        but can no longer be re-verified); return how many."""
+        _aware(older_than, "older_than")
+        with self._session(write=True) as session:
+            result = session.execute(
+                delete(ResidualArchiveRow)
+                .where(ResidualArchiveRow.created_at < older_than)
+                .execution_options(synchronize_session=False)
+            )
+            return int(getattr(result, "rowcount", 0))
 
     # ------------------------------------------------------------------ idempotency
 

@@ -1,4 +1,5 @@
-"""Certificates: create (POST), fetch one, and list (newest first, paginated)."""
+"""Certificates: create (POST), fetch one, list (newest first, paginated), and re-verify
+from a residual archive (``POST /v1/certificates/{id}/verify``)."""
 
 from __future__ import annotations
 
@@ -9,13 +10,34 @@ from fastapi import APIRouter, Depends, Query, Request
 from starlette.concurrency import run_in_threadpool
 from starlette.responses import Response
 
-from api_schemas import CertificatePage, CertificateRequest
-from boundsvc.api.deps import Caller, get_caller, get_store
+from api_schemas import (
+    ArchiveMetadata,
+    CertificatePage,
+    CertificateRequest,
+    VerificationReport,
+    VerifyRequest,
+)
+from boundsvc.api.deps import Caller, get_caller, get_settings_dep, get_store
 from boundsvc.api.routes._resolve import resolve_plan, resolve_problem
-from boundsvc.api.routes._transport import decode_upload, split_octets
+from boundsvc.api.routes._transport import decode_upload, read_body, split_octets
+from boundsvc.api.routes._verification import (
+    archive_json,
+    archive_residuals,
+    verification_report,
+)
 from boundsvc.certify import build_plan, certify
 from boundsvc.errors import BoundsvcError, NotFound
-from boundsvc.store import CertificateConflict, InvalidCursor, Store
+from boundsvc.settings import Settings
+from boundsvc.store import (
+    ArchiveContents,
+    ArchiveCorrupt,
+    ArchiveInfo,
+    CertificateConflict,
+    InvalidCursor,
+    Store,
+    StoredCertificate,
+    decode_residual_archive,
+)
 
 router = APIRouter(prefix="/v1", tags=["certificates"])
 
@@ -29,9 +51,10 @@ def post_certificate(
     body: CertificateRequest,
     store: Store = Depends(get_store),
     caller: Caller = Depends(get_caller),
+    settings: Settings = Depends(get_settings_dep),
 ) -> Response:
     """Compute, store and return a certificate (residuals as JSON lists or base64)."""
-    return create_certificate(store, caller, body, None)
+    return create_certificate(store, caller, body, None, archive_default=settings.archive_residuals)
 
 
 @router.post(
@@ -58,16 +81,23 @@ def post_certificate(
     },
 )
 async def upload_certificate(
-    request: Request, store: Store = Depends(get_store), caller: Caller = Depends(get_caller)
+    request: Request,
+    store: Store = Depends(get_store),
+    caller: Caller = Depends(get_caller),
+    settings: Settings = Depends(get_settings_dep),
 ) -> Response:
     """Residuals as binary: one ``.npz`` (arrays per component and a ``request`` member), or
     raw little-endian float64 components concatenated in plan order (``octet-stream``, the
     rest of the request in the ``X-Boundsvc-Request`` header). See docs/api.md."""
-    raw = await request.body()
+    raw = await read_body(request)  # one buffer, not a list of chunks plus their join
     content_type = request.headers.get("content-type", "").split(";")[0].strip().lower()
     body, arrays = decode_upload(content_type, raw, request.headers.get("x-boundsvc-request"))
     resolved = await run_in_threadpool(_resolve_layout, store, body, arrays)
-    return await run_in_threadpool(create_certificate, store, caller, body, resolved)
+    return await run_in_threadpool(
+        lambda: create_certificate(
+            store, caller, body, resolved, archive_default=settings.archive_residuals
+        )
+    )
 
 
 def _resolve_layout(
@@ -96,10 +126,20 @@ def _plan_for(store: Store, classified: Any, pid: str, body: CertificateRequest)
 
 
 def create_certificate(
-    store: Store, caller: Caller, body: CertificateRequest, arrays: dict[str, Any] | None
+    store: Store,
+    caller: Caller,
+    body: CertificateRequest,
+    arrays: dict[str, Any] | None,
+    *,
+    archive_default: bool = False,
 ) -> Response:
-    """Resolve problem and plan, certify, store (content-addressed, first write wins)."""
-    _, pid, classified = resolve_problem(store, body.problem, body.problem_id)
+    """Resolve problem and plan, certify, store (content-addressed, first write wins).
+
+    With ``archive`` (the request's flag, else the deployment default) the decoded residuals
+    are archived beside the certificate; the flag is not part of the certificate id, so an
+    archive can be added to a stored certificate by posting the same inputs again.
+    """
+    problem, pid, classified = resolve_problem(store, body.problem, body.problem_id)
     plan = _plan_for(store, classified, pid, body)
     residuals: dict[str, Any] = dict(body.residuals)
     if arrays:
@@ -114,12 +154,36 @@ def create_certificate(
         quadrature=body.quadrature,
         project=caller.write_project,
     )
-    existing = store.get_certificate(doc.id, None)
-    if existing is not None:
-        return Response(existing.document, status_code=201, media_type=JSON)
+    stored = store.get_certificate(doc.id, None)
+    if stored is None:
+        stored = _store_certificate(store, caller, body, doc, classified, pid, plan)
+    if body.archive if body.archive is not None else archive_default:
+        archive_residuals(
+            store,
+            doc.id,
+            problem=problem,
+            problem_id=pid,
+            plan=plan,
+            classified=classified,
+            body=body,
+            residuals=residuals,
+            project=caller.write_project,
+        )
+    return Response(stored.document, status_code=201, media_type=JSON)
+
+
+def _store_certificate(
+    store: Store,
+    caller: Caller,
+    body: CertificateRequest,
+    doc: Any,
+    classified: Any,
+    pid: str,
+    plan: Any,
+) -> StoredCertificate:
     model = body.model
     try:
-        store.put_certificate(
+        return store.put_certificate(
             id=doc.id,
             project=caller.write_project,
             model_name=(model.name if model and model.name else ""),
@@ -136,8 +200,7 @@ def create_certificate(
         stored = store.get_certificate(doc.id, None)
         if stored is None:  # pragma: no cover - a conflict implies a stored row
             raise
-        return Response(stored.document, status_code=201, media_type=JSON)
-    return Response(doc.body, status_code=201, media_type=JSON)
+        return stored
 
 
 @router.get("/certificates/{certificate_id}", responses={200: {"description": "the certificate"}})
@@ -186,7 +249,7 @@ def list_certificates(
         )
     except InvalidCursor as exc:
         err = BoundsvcError("invalid_cursor", str(exc), "cursor")
-        err.status = 400
+        err.status, err.title = 400, "Bad request"
         raise err from exc
     return {
         "items": [
@@ -203,3 +266,72 @@ def list_certificates(
         ],
         "next_cursor": page.next_cursor,
     }
+
+
+def _visible(store: Store, caller: Caller, certificate_id: str) -> StoredCertificate:
+    stored = store.get_certificate(certificate_id, caller.project)
+    if stored is None:
+        raise NotFound(
+            "certificate_not_found", f"no certificate with id {certificate_id!r}", "certificate_id"
+        )
+    return stored
+
+
+@router.get("/certificates/{certificate_id}/archive", response_model=ArchiveMetadata)
+def get_archive(
+    certificate_id: str, store: Store = Depends(get_store), caller: Caller = Depends(get_caller)
+) -> Any:
+    """Codec, SHA-256, size and time of the certificate's residual archive (blob not sent)."""
+    _visible(store, caller, certificate_id)
+    info = store.archive_info(certificate_id, caller.project)
+    if info is None:
+        raise NotFound(
+            "archive_not_found",
+            f"certificate {certificate_id!r} has no residual archive",
+            "certificate_id",
+        )
+    return archive_json(info)
+
+
+@router.post("/certificates/{certificate_id}/verify", response_model=VerificationReport)
+def verify_certificate(
+    certificate_id: str,
+    body: VerifyRequest | None = None,
+    store: Store = Depends(get_store),
+    caller: Caller = Depends(get_caller),
+) -> Any:
+    """Recompute the certificate from its residual archive with the running version and
+    report whether it still matches, and what changed (nothing is stored)."""
+    stored = _visible(store, caller, certificate_id)
+    info, contents = _archive_of(store, caller, certificate_id)
+    return verification_report(stored, info, contents, (body or VerifyRequest()).rtol)
+
+
+def _archive_of(
+    store: Store, caller: Caller, certificate_id: str
+) -> tuple[ArchiveInfo, ArchiveContents]:
+    """The archive's metadata and contents; 409 ``not_archived`` or ``archive_corrupt``."""
+    info = store.archive_info(certificate_id, caller.project)
+    contents = None
+    try:
+        archive = store.get_archive(certificate_id, caller.project) if info else None
+        if archive is not None:
+            contents = decode_residual_archive(archive.blob, archive.codec)
+    except ArchiveCorrupt as exc:
+        err = BoundsvcError(
+            "archive_corrupt",
+            f"the residual archive of {certificate_id!r} cannot be used: {exc}",
+            "certificate_id",
+        )
+        err.status, err.title = 409, "Archive corrupt"
+        raise err from exc
+    if info is None or contents is None:  # none, or purged between the two reads
+        err = BoundsvcError(
+            "not_archived",
+            f"certificate {certificate_id!r} has no residual archive to recompute it from "
+            '(certify with "archive": true, or BOUNDSVC_ARCHIVE_RESIDUALS=1)',
+            "certificate_id",
+        )
+        err.status, err.title = 409, "Not archived"
+        raise err
+    return info, contents
