@@ -35,6 +35,11 @@ class ProblemSpec(BaseModel):
     boundary: BoundaryKind | dict[str, BoundaryKind] = "dirichlet"
     initial_value: str | list[str] | None = None
     boundary_value: str | None = None
+    initial_velocity: str | None = Field(
+        default=None,
+        description="u_t(x, t0) for a second-order-in-time equation (wave family), an "
+        "expression in the space coordinates; used for data checks only",
+    )
 
     @field_validator("equation")
     @classmethod
@@ -131,6 +136,10 @@ class ProblemResponse(BaseModel):
     optional_regularity: list[str]
     regularity_requirements: list[RegularityRequirement]
     components: list[str]
+    optional_components: list[str] = Field(
+        default_factory=list,
+        description="components a plan adds on request (POST /v1/plans optional_components)",
+    )
     bounded_quantities: list[str]
     hypotheses: list[str]
     constants: list[dict[str, object]]

@@ -18,8 +18,10 @@ from boundsvc.families._base import (
 from boundsvc.families.advection_diffusion import AdvectionDiffusionFamily
 from boundsvc.families.conservation_law import ConservationLawFamily
 from boundsvc.families.elliptic import EllipticFamily
+from boundsvc.families.navier_stokes import NavierStokesFamily
 from boundsvc.families.ode_system import OdeSystemFamily
 from boundsvc.families.semilinear import SemilinearParabolicFamily
+from boundsvc.families.wave import WaveFamily
 
 # the ODE family first: an ODE problem has no space axes, so the others refuse it anyway
 CATALOGUE: tuple[Family, ...] = (
@@ -28,6 +30,8 @@ CATALOGUE: tuple[Family, ...] = (
     SemilinearParabolicFamily(),
     ConservationLawFamily(),
     EllipticFamily(),
+    WaveFamily(),
+    NavierStokesFamily(),
 )
 
 

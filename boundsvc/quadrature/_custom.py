@@ -109,9 +109,9 @@ def build_custom_plan(
         if name == "interior":
             continue
         item = components[name]
-        if name == "initial":
+        if name == "initial" or name.startswith("initial_"):
             if list(item["axes"]) != space:
-                raise PlanError(f"initial axes must be {space}", "plan.initial.axes")
+                raise PlanError(f"{name} axes must be {space}", f"plan.{name}.axes")
             p, w = _array(name, item["points"], item["weights"], space)
             _check_inside(name, p, space, domain)
             comps[name] = Component(name, tuple(space), p, w, rule="custom")
@@ -120,8 +120,9 @@ def build_custom_plan(
             raise PlanError(f"{name} axes must be {full_axes}", f"plan.{name}.axes")
         p, w = _array(name, item["points"], item["weights"], full_axes)
         _check_inside(name, p, full_axes, domain)
-        kinds = ("dirichlet",) if name == "boundary" else ("periodic",)
-        sides = ("low", "high") if name == "boundary" else ("low",)
+        dirichlet = name in ("boundary", "boundary_t")
+        kinds = ("dirichlet",) if dirichlet else ("periodic",)
+        sides = ("low", "high") if dirichlet else ("low",)
         faces = [Face(a, side) for a in space if domain.boundary[a] in kinds for side in sides]
         face_index = np.full(p.shape[0], -1, dtype=np.int64)
         for f, face in enumerate(faces):

@@ -100,6 +100,15 @@ class Component:
     replicate_index: IntArray | None = None
     replicates: int = 1
     space_lengths: tuple[float, ...] = ()
+    # Set (to the very ``time_index`` array) when that index is ``repeat(arange(n_times),
+    # size // n_times)``: slice ``j`` is the contiguous block ``j`` of points, so per-slice
+    # sums are row sums of a reshape (see ``slice_integrals``). Compared by identity, so a
+    # ``replace`` with another ``time_index`` (sampled plans reorder points) drops it.
+    time_major_index: IntArray | None = field(default=None, repr=False, compare=False)
+
+    @property
+    def time_major(self) -> bool:
+        return self.time_major_index is not None and self.time_major_index is self.time_index
 
     @property
     def size(self) -> int:
@@ -223,10 +232,11 @@ def build_gauss_plan(
             comps[name] = Component(
                 name=name, axes=("t",), points=np.array([[time_grid.t0]]), weights=np.ones(1)
             )
-        elif name == "initial":
+        elif name == "initial" or name.startswith("initial_"):
+            # initial_<d>: a derivative of the initial residual (wave family), same points
             pts, wts = _tensor([axis_nodes[a] for a in space], [axis_weights[a] for a in space])
             comps[name] = Component(name=name, axes=tuple(space), points=pts, weights=wts)
-        elif name == "boundary":
+        elif name in ("boundary", "boundary_t"):
             faces = [
                 Face(a, side)
                 for a in space
@@ -254,6 +264,7 @@ def build_gauss_plan(
                 rule=rule_name,
                 space_lengths=tuple(domain.length(a) for a in space),
             )
+    share_initial_points(comps)
     return Plan(
         plan_id=plan_id_for(spec),
         rule=rule_name,
@@ -262,6 +273,15 @@ def build_gauss_plan(
         time=time_grid,
         axis_nodes=axis_nodes,
     )
+
+
+def share_initial_points(comps: dict[str, Component]) -> None:
+    """``initial_<d>`` components (derivatives of the initial residual) reuse the points,
+    weights and rule of ``initial`` exactly, so their integrals can be combined."""
+    if "initial" in comps:
+        for name in comps:
+            if name.startswith("initial_"):
+                comps[name] = replace(comps["initial"], name=name)
 
 
 def _sliced(
@@ -279,6 +299,7 @@ def _sliced(
         weights=wts,
         time_index=time_index,
         slice_weights=slice_weights,
+        time_major_index=time_index,
     )
 
 

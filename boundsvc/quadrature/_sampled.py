@@ -21,7 +21,13 @@ import numpy as np
 from scipy.stats import qmc
 
 from boundsvc.domain import Domain
-from boundsvc.quadrature._plan import Component, Plan, PlanError, build_gauss_plan
+from boundsvc.quadrature._plan import (
+    Component,
+    Plan,
+    PlanError,
+    build_gauss_plan,
+    share_initial_points,
+)
 
 MAX_REPLICATES = 64
 
@@ -129,4 +135,5 @@ def build_sampled_plan(
                 space_shape=(),
                 space_panels=(),
             )
+    share_initial_points(comps)
     return replace(base, rule=rule, components=comps)
