@@ -140,6 +140,7 @@ class ConservationLawFamily(Family):
                 -s_split.coefficients.get(uxx, sympy.Integer(0)) / s_alpha
             ),
             fields=field_names(expr, ns),
+            time_coefficient=float(alpha),
         )
 
 
@@ -156,6 +157,7 @@ class ClassifiedConservationLaw(Classified):
         symbolic_speed: sympy.Expr,
         symbolic_viscosity: sympy.Expr,
         fields: list[str],
+        time_coefficient: float = 1.0,
     ) -> None:
         self.family = family
         self.problem = problem
@@ -166,6 +168,7 @@ class ClassifiedConservationLaw(Classified):
         self.sym_speed = symbolic_speed
         self.sym_nu = symbolic_viscosity
         self.fields = fields
+        self.time_coefficient = time_coefficient
         self.constant_curvature = not self.curvature.has(self.u)
         # safe: expressions built by our parser, in our internal field symbol only
         self._speed_fn = sympy.lambdify(self.u, speed, modules="numpy")
@@ -331,6 +334,9 @@ class ClassifiedConservationLaw(Classified):
     def _time(self) -> tuple[float, float]:
         assert self.problem.spec.time is not None
         return self.problem.spec.time
+
+    def residual_scale(self) -> float:
+        return 1.0 / self.time_coefficient
 
     def energy_inequality(self, inputs: CertifyInputs) -> EnergyInequality:
         plan, res, reg = inputs.plan, inputs.residuals, inputs.regularity

@@ -279,6 +279,7 @@ class SemilinearParabolicFamily(Family):
                 for a in axes
             },
             fields=field_names(expr, ns),
+            time_coefficient=float(alpha),
         )
 
 
@@ -297,6 +298,7 @@ class ClassifiedSemilinear(Classified):
         symbolic_g: sympy.Expr,
         symbolic_diffusion: dict[str, sympy.Expr],
         fields: list[str],
+        time_coefficient: float = 1.0,
     ) -> None:
         self.family = family
         self.problem = problem
@@ -309,6 +311,7 @@ class ClassifiedSemilinear(Classified):
         self.sym_g = symbolic_g
         self.sym_k = symbolic_diffusion
         self.fields = fields
+        self.time_coefficient = time_coefficient
         self.global_l = global_sup(self.gp, u)
 
     @property
@@ -500,6 +503,9 @@ class ClassifiedSemilinear(Classified):
                 "regularity_missing", "the theorem needs sup_abs_u and sup_abs_model_u", None
             )
         return min(options, key=lambda o: o[0])
+
+    def residual_scale(self) -> float:
+        return 1.0 / self.time_coefficient
 
     def energy_inequality(self, inputs: CertifyInputs) -> EnergyInequality:
         plan, res, reg = inputs.plan, inputs.residuals, inputs.regularity
