@@ -2,17 +2,19 @@
 
 Everything here is independent of the service's parser and families: the PDE operator is written
 out in sympy by each test, residuals are evaluated at the plan's points, and the true error is
-integrated by an independent fine tensor Gauss-Legendre rule (scipy's nodes, 200 x 200).
+integrated by an independent fine tensor Gauss-Legendre rule (scipy's nodes, 200 x 200; the
+integrator is shared with the closed-form registry, ``validation.closed_form.true_error``).
 """
 
 from __future__ import annotations
 
 from collections.abc import Callable
-from dataclasses import dataclass
 
 import numpy as np
 import sympy as sp
-from scipy.special import roots_legendre
+
+from validation.closed_form import TrueError
+from validation.closed_form import true_error as _true_error
 
 t, x = sp.symbols("t x", real=True)
 
@@ -26,15 +28,6 @@ def _fn(expr: sp.Expr) -> Callable[[np.ndarray, np.ndarray], np.ndarray]:
         return np.broadcast_to(np.asarray(f(tt, xx), dtype=float), np.shape(tt)).copy()
 
     return call
-
-
-@dataclass
-class TrueError:
-    """The true error of a surrogate: space-time, final time, and at given times."""
-
-    space_time: float
-    final_time: float
-    at: Callable[[float], float]
 
 
 def residuals_1d(plan, u_model: sp.Expr, operator: Operator, u0: sp.Expr, g: sp.Expr) -> dict:
@@ -59,19 +52,7 @@ def true_error(
     error: sp.Expr, time: tuple[float, float], space: tuple[float, float], n: int = 200
 ) -> TrueError:
     """L2 norms of ``error(t, x)`` by an independent 200 x 200 Gauss-Legendre rule."""
-    e = _fn(error)
-    z, wz = roots_legendre(n)
-    xs = 0.5 * (space[1] - space[0]) * (z + 1) + space[0]
-    wx = 0.5 * (space[1] - space[0]) * wz
-    ts = 0.5 * (time[1] - time[0]) * (z + 1) + time[0]
-    wt = 0.5 * (time[1] - time[0]) * wz
-
-    def at(tk: float) -> float:
-        return float(np.sqrt(np.dot(wx, e(np.full_like(xs, tk), xs) ** 2)))
-
-    tt, xx = np.meshgrid(ts, xs, indexing="ij")
-    st = float(np.sqrt(np.einsum("i,j,ij->", wt, wx, e(tt, xx) ** 2)))
-    return TrueError(space_time=st, final_time=at(time[1]), at=at)
+    return _true_error(_fn(error), time, {"x": space}, n_time=n, n_space=n)
 
 
 def sup_abs(
@@ -127,25 +108,4 @@ def true_error_nd(
     n_space: int = 60,
 ) -> TrueError:
     """L2 norms of ``error(t, x, ...)`` by an independent tensor Gauss-Legendre rule."""
-    axes = tuple(space)
-    e = _fn_nd(error, axes)
-
-    def rule(n: int, lo: float, hi: float) -> tuple[np.ndarray, np.ndarray]:
-        zz, ww = roots_legendre(n)
-        return 0.5 * (hi - lo) * (zz + 1) + lo, 0.5 * (hi - lo) * ww
-
-    nodes = [rule(n_space, *space[a]) for a in axes]
-    grids = np.meshgrid(*[nd for nd, _ in nodes], indexing="ij")
-    weights = np.ones_like(grids[0])
-    for k, wgrid in enumerate(np.meshgrid(*[w for _, w in nodes], indexing="ij")):
-        del k
-        weights = weights * wgrid
-    cols = [g_.ravel() for g_ in grids]
-    wflat = weights.ravel()
-
-    def at(tk: float) -> float:
-        return float(np.sqrt(np.dot(wflat, e(np.full(wflat.size, tk), *cols) ** 2)))
-
-    ts, wt = rule(n_time, *time)
-    st = float(np.sqrt(sum(w_ * at(tk) ** 2 for tk, w_ in zip(ts, wt, strict=True))))
-    return TrueError(space_time=st, final_time=at(time[1]), at=at)
+    return _true_error(_fn_nd(error, tuple(space)), time, space, n_time=n_time, n_space=n_space)

@@ -10,12 +10,11 @@ from typing import Any
 
 import numpy as np
 import sympy as sp
-from scipy.special import roots_legendre
 
 from api_schemas import ProblemSpec
 from boundsvc.certify import build_plan, certify, derive
 from boundsvc.families import problem_sha256
-from tests.families.manufactured import TrueError
+from validation.closed_form import TrueError, true_error
 
 t = sp.Symbol("t", real=True)
 
@@ -61,16 +60,7 @@ def ode_residuals(
 
 def ode_true_error(error: Sequence[sp.Expr], time: tuple[float, float], n: int = 400) -> TrueError:
     """Euclidean error at each time, at T, and its L2 norm in time (Gauss-Legendre, n nodes)."""
-    e = _vector_fn(error)
-    z, wz = roots_legendre(n)
-    ts = 0.5 * (time[1] - time[0]) * (z + 1) + time[0]
-    wt = 0.5 * (time[1] - time[0]) * wz
-
-    def at(tk: float) -> float:
-        return float(np.linalg.norm(e(np.array([tk]))[0]))
-
-    st = float(np.sqrt(np.dot(wt, np.sum(e(ts) ** 2, axis=1))))
-    return TrueError(space_time=st, final_time=at(time[1]), at=at)
+    return true_error(_vector_fn(error), time, {}, n_time=n)
 
 
 def run_ode_case(
