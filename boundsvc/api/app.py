@@ -14,6 +14,7 @@ from boundsvc.api.auth import Authenticator, AuthMiddleware, keys_router
 from boundsvc.api.idempotency import IdempotencyMiddleware
 from boundsvc.api.logs import RequestLogMiddleware, configure_logging
 from boundsvc.api.metrics import Metrics, metrics_router
+from boundsvc.api.openapi import install_openapi
 from boundsvc.api.problem_details import install_error_handlers, problem_response
 from boundsvc.api.ratelimit import RateLimitMiddleware, make_limiter
 from boundsvc.api.routes import certificates, dashboard, meta, plans, problems, reports, studies
@@ -144,6 +145,7 @@ def build_app(settings: Settings | None = None, store: Store | None = None) -> F
     app.state.authenticator = authenticator
     install_error_handlers(app)
     install_store_error_handlers(app)
+    install_openapi(app)  # errors documented as problem+json
 
     for router in (meta.router, problems.router, plans.router, certificates.router,
                    reports.router, studies.router, dashboard.router,
