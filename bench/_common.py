@@ -42,6 +42,7 @@ class Case:
     repeats: int
     transports: tuple[str, ...] = TRANSPORTS
     note: str = ""
+    once: tuple[str, ...] = ()  # transports sent in the first repeat only (slow ones)
     # filled by prepare()
     problem_id: str = ""
     plan_id: str = ""

@@ -8,7 +8,10 @@ repeated (median; the derivation cache answers). Server-side times come from the
 
 In process, in a fresh interpreter per family: ``import boundsvc.certify``, the first
 ``classify`` (cold), ``classify`` of another problem, ``classify`` repeated (no cache) and
-``derive`` repeated (content-hash cache).
+``derive`` repeated (content-hash cache), and ``problem_summary`` repeated (the response
+body: constants rendered as text and LaTeX) and the store write of the route
+(``put_problem`` of an existing row, SQLite). ``GET /v1/health`` on the same server is the
+floor of any request (middlewares, access log).
 """
 
 from __future__ import annotations
@@ -53,6 +56,26 @@ REPRESENTATIVES: dict[str, dict[str, Any]] = {
         "space": {"x": [0.0, 2.0]},
         "boundary_value": "0",
     },
+    "wave": {  # the fixed string, as in tests/contract/test_wave_http.py
+        "equation": "u_tt = 4*u_xx",
+        "space": {"x": [0.0, 1.0]},
+        "time": [0.0, 1.0],
+        "boundary": "dirichlet",
+        "initial_value": "sin(pi*x)",
+        "initial_velocity": "0",
+        "boundary_value": "0",
+    },
+    "incompressible-navier-stokes": {  # 2-D, as in tests/families/test_navier_stokes.py
+        "equation": [
+            "u_t + u*u_x + v*u_y + p_x = nu*(u_xx + u_yy)",
+            "v_t + u*v_x + v*v_y + p_y = nu*(v_xx + v_yy)",
+            "u_x + v_y = 0",
+        ],
+        "unknowns": ["u", "v", "p"],
+        "space": {"x": [0.0, 1.0], "y": [0.0, 1.0]},
+        "time": [0.0, 1.0],
+        "parameters": {"nu": 0.1},
+    },
     "scalar-conservation-law": {
         "equation": "u_t + u*u_x = nu*u_xx",
         "space": {"x": [-1.0, 1.0]},
@@ -92,20 +115,36 @@ class DerivationResult:
     family: str
     http_cold_s: float = float("nan")
     http_cold_server_s: float = float("nan")
+    http_family_cold_server_s: float = float("nan")
     http_new_server_s: float = float("nan")
     http_warm_s: list[float] = field(default_factory=list)
     http_warm_server_s: list[float] = field(default_factory=list)
+    http_health_server_s: list[float] = field(default_factory=list)
     inprocess: dict[str, float] = field(default_factory=dict)
     classified_as: str = ""
     error: str = ""
 
 
-def _http(family: str, problem: dict[str, Any]) -> DerivationResult:
+def _http(family: str, problem: dict[str, Any], other: dict[str, Any] | None) -> DerivationResult:
+    """Two fresh servers: on the first, this family's problem is the first request (cold
+    start: lazy imports, the derivation worker); on the second a problem of ``other``
+    family goes first, so the family's first problem measures its own derivation cost."""
     res = DerivationResult(family)
     with Server() as server:
         client = server.client
         assert client is not None
         res.http_cold_s, r = _timed_post(client, problem, "cold")
+        if r.status_code != 200:
+            res.error = f"{r.status_code} {r.text[:200]}"
+            return res
+        time.sleep(0.2)
+        res.http_cold_server_s = server.durations_ms().get("cold", float("nan")) / 1e3
+    with Server() as server:
+        client = server.client
+        assert client is not None
+        if other is not None:
+            _timed_post(client, other, "other")
+        _, r = _timed_post(client, problem, "family-cold")
         if r.status_code != 200:
             res.error = f"{r.status_code} {r.text[:200]}"
             return res
@@ -116,11 +155,17 @@ def _http(family: str, problem: dict[str, Any]) -> DerivationResult:
             seconds, _ = _timed_post(client, problem, f"warm{i}")
             res.http_warm_s.append(seconds)
             ids.append(f"warm{i}")
+        health = []
+        for i in range(WARM_REPEATS):
+            client.get("/v1/health", headers={"x-request-id": f"health{i}"})
+            health.append(f"health{i}")
         time.sleep(0.2)
         logged = server.durations_ms()
-        res.http_cold_server_s = logged.get("cold", float("nan")) / 1e3
+        if other is not None:
+            res.http_family_cold_server_s = logged.get("family-cold", float("nan")) / 1e3
         res.http_new_server_s = logged.get("new", float("nan")) / 1e3
         res.http_warm_server_s = [logged.get(i, float("nan")) / 1e3 for i in ids]
+        res.http_health_server_s = [logged.get(i, float("nan")) / 1e3 for i in health]
     return res
 
 
@@ -159,6 +204,34 @@ def inprocess_probe(problem: dict[str, Any]) -> dict[str, float]:
         derive(spec)
         times.append(time.perf_counter() - t)
     out["derive_warm_s"] = median(times)
+    # the body of POST /v1/problems (constants as text and LaTeX, hypotheses, ...)
+    from boundsvc.api.routes._resolve import problem_id_of
+    from boundsvc.certify import problem_summary
+
+    classified = derive(spec)
+    pid = problem_id_of(spec)
+    times = []
+    for _ in range(WARM_REPEATS):
+        t = time.perf_counter()
+        problem_summary(classified, pid)
+        times.append(time.perf_counter() - t)
+    out["summary_warm_s"] = median(times)
+    # the store write every POST /v1/problems makes (an existing row: checked, not rewritten)
+    import tempfile
+
+    from boundsvc.store import open_store
+
+    with tempfile.TemporaryDirectory() as tmp:
+        store = open_store(f"sqlite:///{tmp}/probe.sqlite3")
+        body = spec.model_dump(mode="json")
+        store.put_problem(pid, body, classified.family.id)
+        times = []
+        for _ in range(WARM_REPEATS):
+            t = time.perf_counter()
+            store.put_problem(pid, body, classified.family.id)
+            times.append(time.perf_counter() - t)
+        store.dispose()
+    out["store_warm_s"] = median(times)
     return out
 
 
@@ -183,11 +256,13 @@ def _inprocess(problem: dict[str, Any]) -> dict[str, float]:
 
 def run(quick: bool = False, log: Any = print) -> list[DerivationResult]:
     out = []
-    for family, problem in representatives().items():
+    reps = representatives()
+    for family, problem in reps.items():
         if not problem:
             out.append(DerivationResult(family, error="no representative problem in bench"))
             continue
-        res = _http(family, problem)
+        other = next((p for f, p in reps.items() if p and f != family), None)
+        res = _http(family, problem, other)
         if not res.error:
             res.inprocess = _inprocess(problem)
         log(
@@ -201,25 +276,30 @@ def run(quick: bool = False, log: Any = print) -> list[DerivationResult]:
 def render(results: list[DerivationResult]) -> str:
     head = [
         "family",
-        "HTTP cold ms (client / server)",
-        "HTTP new problem, warm server ms",
+        "HTTP first request after start ms (client / server)",
+        "HTTP first problem of the family ms (server)",
+        "HTTP new problem, same family ms (server)",
         "HTTP warm ms (client / server)",
         "import ms",
         "classify cold ms",
         "classify new ms",
         "classify repeated ms",
         "derive warm ms",
+        "response body (problem_summary) warm ms",
+        "store.put_problem repeated ms (SQLite)",
+        "GET /v1/health server ms",
     ]
     rows = []
     for r in results:
         if r.error:
-            rows.append([r.family, r.error, "", "", "", "", "", "", ""])
+            rows.append([r.family, r.error, *[""] * 11])
             continue
         ip = r.inprocess
         rows.append(
             [
                 r.family + ("" if r.classified_as == r.family else f" (as {r.classified_as})"),
                 f"{ms(r.http_cold_s)} / {ms(r.http_cold_server_s)}",
+                ms(r.http_family_cold_server_s),
                 ms(r.http_new_server_s),
                 f"{ms(median(r.http_warm_s))} / {ms(median(r.http_warm_server_s))}",
                 ms(ip["import_s"]),
@@ -227,6 +307,9 @@ def render(results: list[DerivationResult]) -> str:
                 ms(ip["classify_new_s"]),
                 f"{ip['classify_repeat_s'] * 1e3:.2f}",
                 f"{ip['derive_warm_s'] * 1e3:.3f}",
+                f"{ip['summary_warm_s'] * 1e3:.2f}",
+                f"{ip['store_warm_s'] * 1e3:.2f}",
+                f"{median(r.http_health_server_s) * 1e3:.2f}",
             ]
         )
     return table(head, rows)

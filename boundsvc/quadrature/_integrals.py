@@ -41,12 +41,32 @@ def slice_integrals(component: Component, integrand: FloatArray, n_times: int) -
     an upper limit for the squared residual norms of ``interior``/``initial``."""
     if component.time_index is None or component.slice_weights is None:
         raise ValueError(f"component {component.name!r} has no time axis")
-    estimate = np.bincount(
-        component.time_index, weights=component.slice_weights * integrand, minlength=n_times
-    ).astype(np.float64)
+    per = _per_slice(component, integrand, n_times)
+    if per is not None:
+        # contiguous slices: one fused multiply-add pass, no temporary of the plan's size
+        estimate = np.einsum(
+            "ij,ij->i",
+            component.slice_weights.reshape(n_times, per),
+            integrand.reshape(n_times, per),
+        )
+    else:
+        estimate = np.bincount(
+            component.time_index, weights=component.slice_weights * integrand, minlength=n_times
+        ).astype(np.float64)
     if component.name in _LIMITED:
         return _limit(component, integrand, component.time_index, component.slice_weights, estimate)
     return estimate
+
+
+def _per_slice(component: Component, integrand: FloatArray, n_times: int) -> int | None:
+    """Points per time slice when the component is time-major and ``integrand`` is one value
+    per point (else None: the general index-based sums are used)."""
+    if not component.time_major or integrand.ndim != 1 or n_times <= 0:
+        return None
+    per, rest = divmod(component.size, n_times)
+    if rest or integrand.size != component.size:
+        return None
+    return per
 
 
 def face_slice_integrals(component: Component, integrand: FloatArray, n_times: int) -> FloatArray:
@@ -82,7 +102,8 @@ def _limit(
     estimate: FloatArray,
 ) -> FloatArray:
     log = active_log()
-    if log is None or not np.all(f >= 0):
+    # ``min`` is a reduction (no boolean temporary); a NaN minimum also refuses, like before
+    if log is None or (f.size and not float(np.min(f)) >= 0.0):
         return estimate
     rule = component.rule
     if rule == "sobol":
@@ -213,13 +234,10 @@ def _gauss(
             "classical Gauss-Legendre error term with the client's bounds on the 2n-th "
             "derivatives of the squared residual (Abramowitz & Stegun 25.4.30)",
         )
-    wf = (slice_weights * f).reshape(n_slices, *shape)
-    w = slice_weights.reshape(n_slices, *shape)
+    marginals, weighted = _axis_sums(slice_weights, f, n_slices, shape)
     total = np.zeros(n_slices)
     for k in range(len(shape)):
-        others = tuple(i + 1 for i in range(len(shape)) if i != k)
-        m_k = w.sum(axis=others) if others else w
-        g = (wf.sum(axis=others) if others else wf) / m_k * volume
+        g = weighted[k] / marginals[k] * volume
         n = shape[k] // panels[k]
         g = g.reshape(n_slices, panels[k], n)
         total += legendre_tail(g, n, 1.0 / panels[k]).sum(axis=1)
@@ -228,6 +246,24 @@ def _gauss(
         "heuristic",
         "heuristic: decay of the last two discrete Legendre coefficients along each axis",
     )
+
+
+def _axis_sums(
+    slice_weights: FloatArray, f: FloatArray, n_slices: int, shape: tuple[int, ...]
+) -> tuple[list[FloatArray], list[FloatArray]]:
+    """Per slice and space axis ``k``: the sums over the other space axes of ``w`` and of
+    ``w f``, shapes ``(n_slices, shape[k])``. ``einsum`` forms the products inside its
+    reduction, so no array of the plan's size is allocated (in 1-D the result is that size)."""
+    w = slice_weights.reshape(n_slices, *shape)
+    values = f.reshape(n_slices, *shape)
+    letters = "abc"[: len(shape)]
+    marginals: list[FloatArray] = []
+    weighted: list[FloatArray] = []
+    for k in range(len(shape)):
+        others = tuple(i + 1 for i in range(len(shape)) if i != k)
+        marginals.append(w.sum(axis=others) if others else w)
+        weighted.append(np.einsum(f"t{letters},t{letters}->t{letters[k]}", w, values))
+    return marginals, weighted
 
 
 def _grid(

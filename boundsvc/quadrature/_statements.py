@@ -27,6 +27,7 @@ Failure probabilities of all statistical statements are added (union bound) and 
 from __future__ import annotations
 
 import contextvars
+import functools
 import math
 from collections.abc import Iterator, Mapping
 from contextlib import contextmanager
@@ -116,7 +117,17 @@ def legendre_tail(values: FloatArray, n: int, length: float) -> FloatArray:
     """
     if n < 3:
         return np.abs(values).sum(axis=-1) * length / max(n, 1)
-    x, w = np.polynomial.legendre.leggauss(n)
-    basis = np.polynomial.legendre.legvander(x, n - 1)  # (n, n): P_k(x_i)
-    coef = (values * w) @ basis[:, -2:] * (2 * np.arange(n - 2, n) + 1) / 2
+    coef = values @ _tail_basis(n)
     return np.asarray(0.5 * length * np.abs(coef).sum(axis=-1), dtype=np.float64)
+
+
+@functools.lru_cache(maxsize=64)
+def _tail_basis(n: int) -> FloatArray:
+    """``w_i P_k(x_i) (2k+1)/2`` for ``k = n-2, n-1`` on the ``n`` Gauss-Legendre nodes, shape
+    ``(n, 2)``: the last two discrete Legendre coefficients are ``values @ this``. Cached per
+    ``n``: ``leggauss`` solves an eigenproblem (about 0.2 s at n = 250)."""
+    x, w = np.polynomial.legendre.leggauss(n)
+    basis = np.polynomial.legendre.legvander(x, n - 1)[:, -2:]  # (n, 2): P_k(x_i)
+    out = w[:, None] * basis * ((2 * np.arange(n - 2, n) + 1) / 2)[None, :]
+    out.setflags(write=False)
+    return np.asarray(out, dtype=np.float64)
