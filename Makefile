@@ -25,14 +25,14 @@ demo: $(VENV)/.installed-demo
 	$(PY) -m demo.run_demo
 
 lint: $(VENV)/.installed-all
-	$(BIN)/ruff check boundsvc api_schemas tests demo bench validation
-	$(BIN)/ruff format --check boundsvc api_schemas tests demo bench validation
+	$(BIN)/ruff check boundsvc api_schemas tests demo bench validation tools fuzz
+	$(BIN)/ruff format --check boundsvc api_schemas tests demo bench validation tools fuzz
 
 typecheck: $(VENV)/.installed-all
 	$(BIN)/mypy
 
 test: $(VENV)/.installed-all
-	$(BIN)/ruff check boundsvc api_schemas tests demo bench validation
+	$(BIN)/ruff check boundsvc api_schemas tests demo bench validation tools fuzz
 	$(BIN)/mypy
 	$(PY) -m pytest -n 2 -q
 
