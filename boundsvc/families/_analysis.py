@@ -21,9 +21,18 @@ def exact(value: float) -> sympy.Rational:
     return sympy.Rational(frac.numerator, frac.denominator)
 
 
+#: Fields added to ProblemSpec after problems were first stored: left out of the content
+#: address while unset, so a problem that does not use them keeps the id it always had.
+_LATER_FIELDS = ("initial_velocity",)
+
+
 def problem_sha256(problem: ProblemSpec) -> str:
     """SHA-256 of the canonical JSON of a problem (its content address)."""
-    canonical = json.dumps(problem.model_dump(mode="json"), sort_keys=True, separators=(",", ":"))
+    body = problem.model_dump(mode="json")
+    for name in _LATER_FIELDS:
+        if body.get(name) is None:
+            body.pop(name, None)
+    canonical = json.dumps(body, sort_keys=True, separators=(",", ":"))
     return hashlib.sha256(canonical.encode()).hexdigest()
 
 
