@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 from api_schemas import ProblemSpec
-from boundsvc.errors import ProblemNotCovered
+from boundsvc.errors import ProblemInvalid, ProblemNotCovered
 from boundsvc.families._analysis import AnalysedProblem, analyse, exact, problem_sha256
 from boundsvc.families._base import (
     CertifyInputs,
@@ -40,6 +40,19 @@ def family_by_id(family_id: str) -> Family | None:
     return next((f for f in CATALOGUE if f.id == family_id), None)
 
 
+def _check_fields_used(classified: Classified) -> None:
+    """A problem field the chosen theorem ignores is an error, never silently dropped."""
+    spec = classified.problem.spec
+    if spec.initial_velocity is not None and classified.family.id != "wave":
+        raise ProblemInvalid(
+            "problem_invalid",
+            "initial_velocity is the initial value of u_t for an equation second order in "
+            f"time; this problem is first order in time ({classified.family.id}), so it would "
+            "be ignored: leave it out",
+            "problem.initial_velocity",
+        )
+
+
 def classify(problem: ProblemSpec | AnalysedProblem) -> Classified:
     """Parse and classify a problem; raise ProblemNotCovered with every family's reason."""
     analysed = problem if isinstance(problem, AnalysedProblem) else analyse(problem)
@@ -47,6 +60,7 @@ def classify(problem: ProblemSpec | AnalysedProblem) -> Classified:
     for family in CATALOGUE:
         result = family.recognise(analysed)
         if isinstance(result, Classified):
+            _check_fields_used(result)
             return result
         reasons[family.id] = result
     detail = "no family of the catalogue covers this equation: " + "; ".join(

@@ -1,4 +1,4 @@
-"""Problem ids are content addresses that stay stable across releases.
+"""Problem ids are content addresses that stay stable across releases; fields are used.
 
 A certificate's provenance and the store key problems by ``problem_sha256``; if adding an
 optional field to the problem schema changed the id of every existing problem, re-posting
@@ -7,8 +7,11 @@ the same problem after an upgrade would no longer find what was stored for it.
 
 from __future__ import annotations
 
+import pytest
+
 from api_schemas import ProblemSpec
-from boundsvc.families import problem_sha256
+from boundsvc.errors import ProblemInvalid
+from boundsvc.families import classify, problem_sha256
 
 BURGERS = {
     "equation": "u_t + u*u_x = nu*u_xx",
@@ -38,3 +41,19 @@ def test_a_set_later_field_changes_the_id() -> None:
     plain = problem_sha256(ProblemSpec.model_validate(wave))
     moving = problem_sha256(ProblemSpec.model_validate({**wave, "initial_velocity": "sin(x)"}))
     assert plain != moving
+
+
+def test_initial_velocity_on_a_first_order_problem_is_refused() -> None:
+    heat = {
+        "equation": "u_t = 0.1*u_xx",
+        "space": {"x": [0.0, 1.0]},
+        "time": [0.0, 1.0],
+        "boundary": "dirichlet",
+        "initial_velocity": "0",
+    }
+    with pytest.raises(ProblemInvalid) as info:
+        classify(ProblemSpec.model_validate(heat))
+    assert info.value.field == "problem.initial_velocity"
+    assert info.value.code == "problem_invalid"
+    wave = {**heat, "equation": "u_tt = 0.1*u_xx"}
+    assert classify(ProblemSpec.model_validate(wave)).family.id == "wave"
