@@ -159,9 +159,9 @@ class AsyncBoundsvcClient:
 
     async def plan(self, problem: ProblemRef, *, points: Mapping[str, int] | None = None,
                    panels: Mapping[str, int] | None = None, rule: str = "gauss-legendre",
-                   idempotent: bool = True) -> Plan:
+                   idempotent: bool = True, **options: Any) -> Plan:
         """See :meth:`BoundsvcClient.plan`."""
-        call = call_plan(problem, points, panels, rule, idempotent)
+        call = call_plan(problem, points, panels, rule, idempotent, options)
         return Plan.from_response(parse_model(await self._send(call), PlanResponse, call))
 
     async def get_plan(self, plan_id: str) -> Plan:

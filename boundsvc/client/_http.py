@@ -329,12 +329,25 @@ def call_problem(problem: ProblemLike, regularity: Mapping[str, float | str] | N
                  idempotency_key=_idempotency(idempotent, None))
 
 
+#: ``POST /v1/plans`` fields beyond points and panels, passed through as given (see
+#: :class:`api_schemas.PlanRequest`): Sobol/Monte Carlo sizes, grid weights, custom
+#: components and components added on request (e.g. ``["boundary_t"]``).
+PLAN_OPTIONS = ("n", "replicates", "seed", "weights", "components", "optional_components")
+
+
 def call_plan(problem: ProblemRef, points: Mapping[str, int] | None,
-              panels: Mapping[str, int] | None, rule: str, idempotent: bool) -> _Call:
+              panels: Mapping[str, int] | None, rule: str, idempotent: bool,
+              options: Mapping[str, Any] | None = None) -> _Call:
     body: dict[str, Any] = {**_problem_ref(problem), "rule": rule,
                             "points": {k: int(v) for k, v in (points or {}).items()}}
     if panels:
         body["panels"] = {k: int(v) for k, v in panels.items()}
+    for name, value in (options or {}).items():
+        if name not in PLAN_OPTIONS:
+            raise TypeError(f"plan() got an unexpected option {name!r}; "
+                            f"the options are {', '.join(PLAN_OPTIONS)}")
+        if value is not None:
+            body[name] = list(value) if name == "optional_components" else value
     return _Call("POST", "/v1/plans", _json_bytes(body),
                  idempotency_key=_idempotency(idempotent, None))
 
@@ -784,7 +797,7 @@ class BoundsvcClient:
 
     def plan(self, problem: ProblemRef, *, points: Mapping[str, int] | None = None,
              panels: Mapping[str, int] | None = None, rule: str = "gauss-legendre",
-             idempotent: bool = True) -> Plan:
+             idempotent: bool = True, **options: Any) -> Plan:
         """Quadrature nodes and weights per component (``POST /v1/plans``).
 
         Parameters
@@ -792,11 +805,17 @@ class BoundsvcClient:
         problem : ProblemSpec, mapping or str
             The problem, or the ``problem_id`` of a stored one.
         points : mapping of axis to int
-            Gauss-Legendre nodes per panel, e.g. ``{"t": 32, "x": 32}``.
+            Gauss-Legendre (or grid) nodes per panel, e.g. ``{"t": 32, "x": 32}``.
         panels : mapping of axis to int, optional
             Composite panels per axis.
+        rule : str
+            ``gauss-legendre``, ``sobol``, ``monte-carlo``, ``grid`` or ``custom``.
+        **options
+            The other plan fields (:data:`PLAN_OPTIONS`): ``n``, ``replicates``, ``seed``
+            (Sobol, Monte Carlo), ``weights`` (grid), ``components`` (custom),
+            ``optional_components`` (e.g. ``["boundary_t"]`` for the boundary lifting).
         """
-        call = call_plan(problem, points, panels, rule, idempotent)
+        call = call_plan(problem, points, panels, rule, idempotent, options)
         return Plan.from_response(parse_model(self._send(call), PlanResponse, call))
 
     def get_plan(self, plan_id: str) -> Plan:

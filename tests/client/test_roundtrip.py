@@ -171,3 +171,25 @@ def test_api_key_from_the_environment_is_accepted(
         assert [s.project for s in client.certificates(model="keyed")] == ["team-a"]
         assert client.certificate(cert.id).id == cert.id
     store.dispose()
+
+
+def test_sobol_plan_and_lifting_component_through_the_client(client: BoundsvcClient) -> None:
+    """Every plan rule is reachable from the client: a scrambled Sobol plan (its interior
+    points are a base-2 net per replicate) and a Gauss-Legendre plan with the optional
+    ``boundary_t`` component of the boundary lifting."""
+    sobol = client.plan(HEAT, rule="sobol", n=64, replicates=4, seed=7, points={"t": 4})
+    assert sobol.plan_id == client.plan(
+        HEAT, rule="sobol", n=64, replicates=4, seed=7, points={"t": 4}
+    ).plan_id  # reproducible from the request
+    interior = sobol.components["interior"]
+    assert interior.points.shape[0] % 4 == 0
+    assert math.isclose(float(interior.weights.sum()), T_END * 1.0, rel_tol=1e-12)
+    cert = client.certify(HEAT, sobol, REGULARITY, residuals(sobol))
+    assert cert.status == "valid"
+    assert cert.bound.l2_final_time is not None
+    assert cert.bound.l2_final_time >= EPS * T_END / math.sqrt(2)  # the true final-time error
+
+    lifted = client.plan(HEAT, points={"t": 6, "x": 6}, optional_components=["boundary_t"])
+    assert "boundary_t" in lifted.components
+    with pytest.raises(TypeError, match="unexpected option"):
+        client.plan(HEAT, points={"t": 4, "x": 4}, replicate=3)
