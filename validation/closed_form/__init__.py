@@ -19,10 +19,7 @@ from validation.closed_form._truth import TrueError, true_error
 #: catalogue families whose closed-form module is being written by the family's author; the
 #: acceptance test reports them as expected failures (visible, never silently passing) and fails
 #: once a module gives them cases while they are still listed here
-PENDING: dict[str, str] = {
-    "incompressible-navier-stokes": "closed-form module validation/closed_form/navier_stokes.py "
-    "pending (family in progress)",
-}
+PENDING: dict[str, str] = {}
 
 
 def family_modules() -> list[str]:
