@@ -110,7 +110,7 @@ def memory_checks(results: Sequence[MemoryResult]) -> list[Check]:
                 else f"over by {ratio / MEMORY_RATIO - 1:.0%}"
                 + (
                     " (FastAPI's JSON route: the chunks and the joined body, the parsed "
-                    "base64 string and the decoded bytes coexist; not a route this task owns)"
+                    "base64 string and the decoded bytes coexist)"
                     if r.transport == "base64"
                     else ""
                 ),
@@ -206,7 +206,7 @@ def explain(
                 "difference is the client (httpx sending 80 MB; see its client CPU in part 1)."
             )
         out.append(
-            line + " Remedy (outside this task's files): vectorise `_advance` over "
+            line + " Remedy: vectorise `_advance` over "
             "its sub-intervals and share work between the Young-weight trials."
         )
     if any("base64" in m and "memory" in m for m in missed):
@@ -217,8 +217,8 @@ def explain(
                 "JSON body. The JSON route is FastAPI's: it joins the body's chunks "
                 "(twice the body at the peak), `json.loads` makes the base64 text a Python "
                 "string (the body again) and the decoded bytes are the payload; the binary "
-                "routes stay near 2x. Remedy (in `boundsvc/api/routes/certificates.py`, not "
-                "this task's file): read the JSON body with `read_body` and decode it without "
+                "routes stay near 2x. Remedy (in `boundsvc/api/routes/certificates.py`): read the "
+                "JSON body with `read_body` and decode it without "
                 "keeping the joined copy."
             )
     warm_missed = [

@@ -219,15 +219,46 @@ def propagate(
     ended_by: str | None = None
     ended_at: float | None = None
     budget = [_MAX_SUBINTERVALS]
+    # steps before the first pole; their rate integrals and forcing contributions are computed
+    # for all steps at once (``None`` when that fails: then step by step, as the loop did)
+    n_steps = times.size - 1
+    if first_pole is not None:
+        n_steps = int(np.searchsorted(times[1:], first_pole, side="left"))
+    batch = _batched_steps(rate, times, n_steps, panel_of, interpolants, clip)
+    fast = _unrolled(batch, initial, len(names)) if batch is not None else None
     for k in range(1, times.size):
+        if fast is not None:
+            # same control flow as below, on the unrolled values (no state carried)
+            p, q = float(times[k - 1]), float(times[k])
+            if first_pole is not None and q >= first_pole:
+                finite_until, ended_by, ended_at = p, "rate-pole", first_pole
+                break
+            log_values, share_rows = fast
+            if k - 1 >= log_values.size:
+                finite_until, ended_by, ended_at = p, "rate-too-stiff", q
+                break
+            value = float(log_values[k - 1])
+            if math.isnan(value) or value > LOG_FLOAT_MAX:
+                finite_until, ended_by, ended_at = p, "overflow", q
+                break
+            log_y[k] = value
+            for i, name in enumerate(names):
+                shares[name][k] = share_rows[k - 1, i]
+            continue
         p, q = float(times[k - 1]), float(times[k])
         if first_pole is not None and q >= first_pole:
             finite_until, ended_by, ended_at = p, "rate-pole", first_pole
             break
         try:
-            scale, v, total = _advance(
-                rate, p, q, interpolants[panel_of[k]], clip, scale, v, total, budget
-            )
+            if batch is None:
+                scale, v, total = _advance(
+                    rate, p, q, interpolants[panel_of[k]], clip, scale, v, total, budget
+                )
+            elif k - 1 < len(batch):
+                d_log, contrib = batch[k - 1]
+                scale, v, total = _combine(d_log, contrib, scale, v, total)
+            else:
+                raise RateTooStiff("the rate is not finite or needs too many sub-intervals")
         except RateTooStiff:
             finite_until, ended_by, ended_at = p, "rate-too-stiff", q
             break
@@ -317,6 +348,133 @@ def _advance(
         contrib = np.einsum("pq,pqs->ps", half[:, None] * _W16[None, :] * np.exp(expo), g)
     else:
         contrib = np.zeros((pieces, 0))
+    return _combine(d_log, contrib, scale, v, total)
+
+
+def _batched_steps(
+    rate: Rate,
+    times: FloatArray,
+    n_steps: int,
+    panel_of: NDArray[np.int64],
+    interpolants: Sequence[Callable[[FloatArray], FloatArray] | None],
+    clip: NDArray[np.bool_],
+) -> list[tuple[FloatArray, FloatArray]] | None:
+    """``(d_log, contrib)`` of every step ``times[k] -> times[k+1]``, ``k < n_steps``, exactly
+    as :func:`_advance` computes them one step at a time, but with one rate integral for all
+    steps (the integrals and the interpolation are elementwise, so batching changes no value).
+
+    The list stops before the first step at which :func:`_advance` would raise (non-finite
+    rate integral or sub-interval budget exhausted). ``None``: a rate integral failed to
+    converge somewhere; the caller then goes step by step to find where.
+    """
+    if n_steps <= 0:
+        return []
+    lower, upper = times[:n_steps].astype(np.float64), times[1 : n_steps + 1].astype(np.float64)
+    try:
+        whole = rate.integral(lower, upper)
+    except RateTooStiff:
+        return None
+    finite = np.isfinite(whole)
+    usable = n_steps if finite.all() else int(np.argmin(finite))
+    pieces = np.maximum(1, np.ceil(np.abs(whole[:usable]) / _STEP_EXPONENT)).astype(np.int64)
+    over = np.flatnonzero(np.cumsum(pieces) > _MAX_SUBINTERVALS)
+    if over.size:
+        usable = int(over[0])
+    if usable == 0:
+        return []
+    pieces = pieces[:usable]
+    edges = [
+        np.linspace(float(lower[k]), float(upper[k]), int(pieces[k]) + 1) for k in range(usable)
+    ]
+    a = np.concatenate([e[:-1] for e in edges])
+    b = np.concatenate([e[1:] for e in edges])
+    try:
+        d_log = rate.integral(a, b)
+        mid = 0.5 * (a + b)
+        half = 0.5 * (b - a)
+        s = mid[:, None] + half[:, None] * _X16[None, :]
+        expo = rate.integral(s.ravel(), np.repeat(b, _X16.size)).reshape(s.shape)
+    except RateTooStiff:
+        return None
+    step_of = np.repeat(np.arange(usable), pieces)
+    n_src = int(clip.size)
+    contrib = np.zeros((a.size, n_src))
+    if n_src:
+        g = np.zeros((*s.shape, n_src))
+        piece_panel = panel_of[1 : usable + 1][step_of]
+        for m in np.unique(piece_panel).tolist():
+            interp = interpolants[m]
+            if interp is None:
+                continue
+            rows = np.flatnonzero(piece_panel == m)
+            g[rows] = np.asarray(interp(s[rows].ravel()), dtype=np.float64).reshape(
+                rows.size, _X16.size, -1
+            )
+        if np.any(clip):
+            g[..., clip] = np.maximum(g[..., clip], 0.0)
+        contrib = np.einsum("pq,pqs->ps", half[:, None] * _W16[None, :] * np.exp(expo), g)
+    bounds = np.concatenate([[0], np.cumsum(pieces)])
+    return [
+        (d_log[bounds[k] : bounds[k + 1]], contrib[bounds[k] : bounds[k + 1]])
+        for k in range(usable)
+    ]
+
+
+def _unrolled(
+    batch: list[tuple[FloatArray, FloatArray]], initial: float, n_names: int
+) -> tuple[FloatArray, FloatArray] | None:
+    """The bound at every step end from the pieces of all steps at once.
+
+    Unrolling ``Y(b_i) = exp(d_i) Y(a_i) + c_i`` over all pieces ``i`` (all steps), with
+    ``D_j = d_0 + ... + d_j``: ``Y_src(b_j) = exp(D_j) (Y_src(t0) + sum_{i<=j} c_i,src exp(-D_i))``,
+    the same sum the piece-by-piece recursion forms (up to rounding). In log space the inner sum is
+    a running log-sum-exp (``np.logaddexp.accumulate``), so nothing overflows. Returns the log of
+    the total and the shares of the sources at each usable step end (the list stops at a step whose
+    contribution is not finite: the recursion raises there), or ``None`` when the unrolled form
+    does not apply (negative initial value, a non-finite exponent): then step by step.
+    """
+    if initial < 0.0:
+        return None
+    if not batch:
+        return np.zeros(0), np.zeros((0, n_names))
+    d_all = np.concatenate([d for d, _ in batch])
+    c_all = np.concatenate([c for _, c in batch])
+    ends = np.cumsum([d.size for d, _ in batch]) - 1
+    bad_c = ~np.isfinite(c_all).all(axis=1) if c_all.size else np.zeros(d_all.size, dtype=bool)
+    usable = len(batch)
+    if np.any(bad_c):
+        usable = int(np.searchsorted(ends, int(np.argmax(bad_c)), side="left"))
+        if usable == 0:
+            return np.zeros(0), np.zeros((0, n_names))
+        n_pieces = int(ends[usable - 1]) + 1
+        d_all, c_all, ends = d_all[:n_pieces], c_all[:n_pieces], ends[:usable]
+    if not np.all(np.isfinite(d_all)) or np.any(c_all < 0.0):
+        return None
+    cum = np.cumsum(d_all)
+    with np.errstate(divide="ignore"):
+        log_src = np.empty((d_all.size, n_names))
+        log_src[:, 0] = math.log(initial) if initial > 0 else -math.inf
+        if n_names > 1:
+            terms = np.log(c_all) - cum[:, None]
+            log_src[:, 1:] = np.logaddexp.accumulate(terms, axis=0)
+    log_src = log_src[ends] + cum[ends][:, None]
+    top = np.max(log_src, axis=1)
+    finite_top = np.where(np.isfinite(top), top, 0.0)
+    with np.errstate(invalid="ignore"):
+        rel = np.exp(log_src - finite_top[:, None])
+    mass = rel.sum(axis=1)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        log_total = np.where(top == -math.inf, -math.inf, finite_top + np.log(mass))
+        share_rows = np.where(mass[:, None] > 0, rel / mass[:, None], 0.0)
+    share_rows[top == -math.inf] = np.eye(1, n_names)[0]
+    return log_total, share_rows
+
+
+def _combine(
+    d_log: FloatArray, contrib: FloatArray, scale: float, v: FloatArray, total: float
+) -> tuple[float, FloatArray, float]:
+    """Apply the pieces of one step: ``Y(b_i) = exp(d_log_i) Y(a_i) + contrib_i``."""
+    pieces = int(d_log.size)
     for i in range(pieces):
         # Y(b_i) = exp(d_log_i) Y(a_i) + contrib_i   (variation of constants on [a_i, b_i]);
         # choose the new scale so that both summands have magnitude <= 1 before adding.
