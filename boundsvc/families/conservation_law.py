@@ -240,7 +240,15 @@ class ClassifiedConservationLaw(Classified):
         return reqs
 
     def optional_keys(self) -> list[str]:
-        return ["sup_neg_u_x", "sup_pos_u_x", "sup_abs_u_x", "sup_abs_u", "sup_abs_model_u"]
+        return [
+            "sup_neg_u_x",
+            "sup_pos_u_x",
+            "sup_abs_u_x",
+            "sup_abs_u",
+            "sup_abs_model_u",
+            "sup_neg_model_u_x",
+            "sup_pos_model_u_x",
+        ]
 
     def description(self) -> dict[str, object]:
         ns = self.problem.namespace
@@ -383,15 +391,34 @@ class ClassifiedConservationLaw(Classified):
             rate_parts.append((f2m, sp))
             poles += _common_poles(sp)
         rate = _rate_from(rate_parts, tuple(sorted(set(poles))))
+        # model-anchored variant: the relative-entropy identity with the model as the
+        # reference solution, w (f(u_model) - f(u))_x = d_x q(u|u_model) + u_model_x Q(u|u_model),
+        # so the rate uses the model's one-sided gradient bounds instead of the exact solution's
+        model_parts: list[tuple[float, list[RegularityValue]]] = []
+        model_poles: list[float] = []
+        if any(k in reg for k in _MODEL_GRADIENT_KEYS):
+            if pos and f2p > 0:
+                mm = [reg[k] for k in ("sup_neg_model_u_x",) if k in reg]
+                model_parts.append((f2p, mm))
+                model_poles += _common_poles(mm)
+            if neg and f2m > 0:
+                mp = [reg[k] for k in ("sup_pos_model_u_x",) if k in reg]
+                model_parts.append((f2m, mp))
+                model_poles += _common_poles(mp)
         forcing: dict[str, np.ndarray] = {}
         info: dict[str, SourceInfo] = {}
         bnd = plan.components["boundary"]
         rb = res["boundary"]
+        model_flux: np.ndarray | None = None
         if self.problem.boundary_value is not None:
             g = evaluate_on(self.problem.boundary_value, self.problem, bnd.axes, bnd.points)
             q = self._relative_flux(g + rb, g)
             signs = np.where(bnd.face_index == 0, 2.0, -2.0)  # face 0: x_L (low), face 1: x_R
             flux = face_slice_integrals(bnd, signs * q, n_t).sum(axis=0)
+            # with the model as reference the boundary flux is q(u|u_model) = q(g|g + R_b)
+            model_flux = face_slice_integrals(bnd, signs * self._relative_flux(g, g + rb), n_t).sum(
+                axis=0
+            )
             detail = "q(u_model|g) evaluated from the boundary data and residuals, signed"
         else:
             box = {self.u: (-big_m, big_m)}
@@ -449,7 +476,7 @@ class ClassifiedConservationLaw(Classified):
                 rigor="proven",
             )
         )
-        return EnergyInequality(
+        main = EnergyInequality(
             base_rate=rate,
             initial=y0,
             initial_info=SourceInfo(
@@ -476,6 +503,65 @@ class ClassifiedConservationLaw(Classified):
             rate_rigor="assumed" if rate_parts else "proven",
             inputs={"f2_plus": f2p, "f2_minus": f2m},
         )
+        if model_parts and all(vals for _, vals in model_parts):
+            anchored_forcing = dict(forcing)
+            anchored_info = dict(info)
+            if model_flux is not None:
+                anchored_forcing["boundary_flux"] = model_flux
+                anchored_info["boundary_flux"] = SourceInfo(
+                    "boundary relative-entropy flux",
+                    "2 q(x_L) - 2 q(x_R)",
+                    "2 q(u|u_model)(x_L, t) - 2 q(u|u_model)(x_R, t)",
+                    "heuristic",
+                    "q(g|u_model) evaluated from the boundary data and residuals, signed "
+                    "(the model is the reference solution)",
+                )
+            anchored_constants = list(constants)
+            anchored_constants[0] = ConstantInfo(
+                name="growth rate of ||w||^2 (model-anchored)",
+                symbol="a(t)",
+                expression=constants[0]
+                .expression.replace("S_minus", "S_model_minus")
+                .replace("S_plus", "S_model_plus"),
+                latex=constants[0]
+                .latex.replace("S_{-}", "S^{*}_{-}")
+                .replace("S_{+}", "S^{*}_{+}"),
+                derivation=(
+                    "The relative-entropy identity with the model as the reference solution: "
+                    "w (f(u_model) - f(u))_x = d_x q(u|u_model) + u_model_x Q(u|u_model).",
+                    "-u_model_x Q(u|u_model) <= (f2_plus S_model_minus + f2_minus "
+                    "S_model_plus) w^2/2, with S_model_minus >= sup_x max(-d_x u_model, 0) "
+                    "(sup_neg_model_u_x) and S_model_plus >= sup_x max(d_x u_model, 0) "
+                    "(sup_pos_model_u_x).",
+                    "Every other step as in the exact-solution-anchored rate.",
+                ),
+                reference=REFERENCE,
+                value=None,
+                rigor="assumed",
+            )
+            anchored = EnergyInequality(
+                base_rate=_rate_from(model_parts, tuple(sorted(set(model_poles)))),
+                initial=y0,
+                initial_info=main.initial_info,
+                residual=residual,
+                residual_info=main.residual_info,
+                forcing=anchored_forcing,
+                forcing_info=anchored_info,
+                nonnegative=("boundary_viscous",),
+                constants=anchored_constants,
+                warnings=[
+                    *warnings,
+                    "model-anchored: the growth rate uses the model's one-sided gradient "
+                    "bounds (sup_neg_model_u_x / sup_pos_model_u_x), which the client asserts "
+                    "for its own model (rigor: assumed)",
+                ],
+                failed_hypotheses=main.failed_hypotheses,
+                rate_rigor="assumed",
+                inputs=main.inputs,
+                label="model-anchored rate (the model's gradient)",
+            )
+            main.alternatives.append(anchored)
+        return main
 
     def _relative_flux(self, a: np.ndarray, b: np.ndarray) -> np.ndarray:
         """q(a|b) = (a-b)^2 int_0^1 theta f'(b + theta (a-b)) dtheta (64-point Gauss)."""
@@ -484,6 +570,12 @@ class ClassifiedConservationLaw(Classified):
         with np.errstate(all="ignore"):
             speed = np.broadcast_to(np.asarray(self._speed_fn(s), dtype=np.float64), s.shape)
         return np.square(d) * (speed * (_THETA * _THETA_W)[None, :]).sum(axis=1)
+
+
+#: Regularity keys of the model's own gradient that enable the model-anchored rate.
+#: (``sup_abs_model_u_x`` is not used here: the viscous boundary term asks for it as a bound
+#: on the boundary only, which is not a bound over the whole interval.)
+_MODEL_GRADIENT_KEYS = ("sup_neg_model_u_x", "sup_pos_model_u_x")
 
 
 def _certified_time_sup(value: RegularityValue, interval: tuple[float, float]) -> float:
