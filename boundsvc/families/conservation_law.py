@@ -20,6 +20,7 @@ the values of the exact solution and the model (for a convex flux only ``S_-`` e
 
 from __future__ import annotations
 
+import functools
 import math
 from collections.abc import Mapping, Sequence
 
@@ -141,6 +142,7 @@ class ConservationLawFamily(Family):
             ),
             fields=field_names(expr, ns),
             time_coefficient=float(alpha),
+            source_free=sympy.expand(split.remainder) == 0,
         )
 
 
@@ -158,8 +160,10 @@ class ClassifiedConservationLaw(Classified):
         symbolic_viscosity: sympy.Expr,
         fields: list[str],
         time_coefficient: float = 1.0,
+        source_free: bool = False,
     ) -> None:
         self.family = family
+        self.source_free = source_free
         self.problem = problem
         self.u = problem.namespace.field(problem.unknowns[0], ())
         self.speed = speed  # A(u) = f'(u)
@@ -186,6 +190,38 @@ class ClassifiedConservationLaw(Classified):
 
     def _needs_range(self) -> bool:
         return not self.constant_curvature or self.problem.boundary_value is None
+
+    @functools.cached_property
+    def data_bound(self) -> float | None:
+        """sup |u| of the exact solution by the maximum principle, from the problem's data.
+
+        Without a source, a solution of ``u_t + f(u)_x = nu u_xx`` (nu >= 0; the entropy
+        solution when nu = 0) takes its values between the extremes of its initial and
+        boundary data (comparison principle: Kruzkov 1970 for nu = 0; the parabolic maximum
+        principle, e.g. Evans 2010 sec. 7.1.4, for nu > 0). Both extremes are certified by
+        interval branch and bound; None when the data are missing or cannot be bounded.
+        """
+        problem = self.problem
+        if (
+            not self.source_free
+            or problem.initial_values is None
+            or problem.boundary_value is None
+            or problem.spec.time is None
+        ):
+            return None
+        ns = problem.namespace
+        x, t = ns.coordinate("x"), ns.coordinate("t")
+        lo, hi = problem.spec.space["x"]
+        t0, t_end = problem.spec.time
+        try:
+            bounds = [certified_max(sympy.Abs(problem.initial_values[0]), {x: (lo, hi)})]
+            for face in (lo, hi):
+                g = problem.boundary_value.xreplace({x: sympy.Float(face, 17)})
+                bounds.append(certified_max(sympy.Abs(g), {t: (t0, t_end)}))
+        except IntervalError:
+            return None
+        value = max(bounds)
+        return value if math.isfinite(value) else None
 
     def components(self) -> list[str]:
         return ["interior", "initial", "boundary"]
@@ -225,13 +261,14 @@ class ClassifiedConservationLaw(Classified):
                 )
             )
         if self._needs_range():
-            reqs.append(
-                Requirement(
-                    ("sup_abs_u",),
-                    "range of u for bounds on f' and f''",
-                    "sup |u| of the exact solution",
+            if self.data_bound is None:  # else derived from the data (maximum principle)
+                reqs.append(
+                    Requirement(
+                        ("sup_abs_u",),
+                        "range of u for bounds on f' and f''",
+                        "sup |u| of the exact solution",
+                    )
                 )
-            )
             reqs.append(
                 Requirement(
                     ("sup_abs_model_u",), "range of the model for f' and f''", "sup |u_model|"
@@ -327,6 +364,10 @@ class ClassifiedConservationLaw(Classified):
     def _range(self, reg: Mapping[str, RegularityValue], t_end: float) -> float:
         values = []
         for key in ("sup_abs_u", "sup_abs_model_u"):
+            if key == "sup_abs_u" and key not in reg:
+                assert self.data_bound is not None  # requirements() asked for the key otherwise
+                values.append(self.data_bound)
+                continue
             value = reg[key]
             if value.constant is not None:
                 values.append(float(value.constant))
@@ -476,6 +517,27 @@ class ClassifiedConservationLaw(Classified):
                 rigor="proven",
             )
         )
+        if self._needs_range() and "sup_abs_u" not in reg and self.data_bound is not None:
+            constants.append(
+                ConstantInfo(
+                    name="sup |u| by the maximum principle",
+                    symbol="M_u",
+                    expression="max(sup_x |u0(x)|, sup_t |g(x_L, t)|, sup_t |g(x_R, t)|)",
+                    latex=r"M_u = \max(\sup|u_0|, \sup|g(x_L,\cdot)|, \sup|g(x_R,\cdot)|)",
+                    derivation=(
+                        "No source term: the solution takes its values between the extremes "
+                        "of its initial and boundary data (comparison principle; Kruzkov 1970 "
+                        "for nu = 0, the parabolic maximum principle for nu > 0).",
+                        "Each sup is certified by interval branch and bound of the data "
+                        "expressions over the space interval and over [t0, T].",
+                        "Used in place of sup_abs_u, which the request did not give.",
+                    ),
+                    reference="S. N. Kruzkov, Math. USSR Sb. 10 (1970) 217-243; L. C. Evans, "
+                    "Partial Differential Equations, 2nd ed. 2010, sec. 7.1.4",
+                    value=self.data_bound,
+                    rigor="proven",
+                )
+            )
         main = EnergyInequality(
             base_rate=rate,
             initial=y0,
