@@ -19,7 +19,7 @@ from starlette.responses import Response
 
 from api_schemas import PlanRequest, PlanResponse
 from boundsvc.api.deps import get_store
-from boundsvc.api.routes._resolve import resolve_plan, resolve_problem
+from boundsvc.api.routes._resolve import known_ids, resolve_plan, resolve_problem
 from boundsvc.certify import build_plan, plan_body, plan_spec
 from boundsvc.errors import NotFound
 from boundsvc.quadrature import Plan
@@ -88,7 +88,10 @@ def post_plan(
     _, pid, classified = resolve_problem(store, body.problem, body.problem_id)
     spec = plan_spec(body, pid)
     plan = build_plan(classified, spec)
-    store.put_plan(plan.plan_id, spec, problem_id=pid)
+    known = known_ids(store)  # as for problems: skip the write of a plan confirmed stored
+    if plan.plan_id not in known or store.get_plan(plan.plan_id) is None:
+        store.put_plan(plan.plan_id, spec, problem_id=pid)
+        known.add(plan.plan_id)
     return render_plan(plan, pid, format, 201)
 
 
