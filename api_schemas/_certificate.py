@@ -46,6 +46,13 @@ class CertificateRequest(BaseModel):
         default=None, description="Inline points and weights per component instead of plan_id."
     )
     residuals: dict[str, ResidualValues] = Field(default_factory=dict)
+    fields: dict[str, dict[str, ResidualValues]] | None = Field(
+        default=None,
+        description="Fields mode: per component (interior, initial, boundary), the model's "
+        "values and derivatives at the plan's points by name ('u', 'u_t', 'u_x', 'u_xx', ...); "
+        "the service forms that component's residual from the declared equation and data. "
+        "A component is sent as residuals or as fields, not both.",
+    )
     model: ModelInfo | None = None
     quadrature: QuadratureOptions | None = None
     archive: bool | None = Field(

@@ -20,7 +20,7 @@ from typing import Any, cast
 from api_schemas import ModelInfo, PlanRequest, ProblemSpec, QuadratureOptions
 from boundsvc import __version__
 from boundsvc.assembly import BoundResult, assemble_best, final_log_at, steady_result
-from boundsvc.errors import PlanInvalid
+from boundsvc.errors import PlanInvalid, ResidualError
 from boundsvc.families import (
     CertifyInputs,
     Classified,
@@ -30,6 +30,7 @@ from boundsvc.families import (
     weakest,
 )
 from boundsvc.families._base import Rigor
+from boundsvc.fields import residuals_from_fields
 from boundsvc.quadrature import (
     Plan,
     PlanError,
@@ -327,11 +328,28 @@ def certify(
     quadrature: QuadratureOptions | None = None,
     project: str | None = None,
     now: dt.datetime | None = None,
+    fields: Mapping[str, Mapping[str, object]] | None = None,
 ) -> CertificateDocument:
-    """Compute a certificate. Raises core errors (RegularityError, ResidualError, ...)."""
+    """Compute a certificate. Raises core errors (RegularityError, ResidualError, ...).
+
+    ``fields`` (fields mode): per component, the model's values and derivatives at the plan's
+    points; the service forms those components' residuals from the parsed equation and data.
+    """
     values = parse_all_regularity(classified, regularity)
     n_eq = len(classified.problem.unknowns)
+    field_digests: dict[str, str] = {}
+    if fields:
+        both = sorted(set(fields) & set(residuals))
+        if both:
+            raise ResidualError(
+                "fields_invalid",
+                f"{both[0]!r} is sent both as residuals and as fields; send one of them",
+                f"fields.{both[0]}",
+            )
+        formed, field_digests = residuals_from_fields(classified, plan, fields)
+        residuals = {**residuals, **formed}
     arrays, digests = validate_residuals(plan, residuals, classified.components(), n_eq)
+    digests = {**digests, **field_digests}
     scale = classified.residual_scale()
     if scale != 1.0 and "interior" in arrays:
         # the digests stay those of the arrays as sent; the theorem sees its own residual

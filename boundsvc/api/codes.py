@@ -26,6 +26,10 @@ SERVICE_CODES: dict[str, tuple[int, str]] = {
     "regularity_negative": (422, "A regularity value is negative somewhere on the interval."),
     "regularity_invalid": (422, "A regularity value cannot be used (not finite, unbounded)."),
     "residual_missing": (422, "A residual component the theorem needs is missing."),
+    "fields_invalid": (
+        422,
+        "Fields mode: a component or field name the service cannot use, or missing data.",
+    ),
     "residual_unknown_component": (422, "A residual component is not in the plan."),
     "residual_length": (422, "A component has a different number of values than the plan."),
     "residual_shape": (422, "A component's rows do not match the number of equations."),

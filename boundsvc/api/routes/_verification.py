@@ -28,6 +28,7 @@ from boundsvc import __version__
 from boundsvc.certify import CertificateDocument, build_plan, certify, derive
 from boundsvc.errors import BoundsvcError
 from boundsvc.families import Classified
+from boundsvc.fields import FIELDS_PREFIX, field_arrays, split_field_arrays
 from boundsvc.quadrature import Plan
 from boundsvc.residuals import validate_residuals
 from boundsvc.store import (
@@ -72,6 +73,7 @@ def archive_residuals(
     body: CertificateRequest,
     residuals: Mapping[str, object],
     project: str,
+    fields: Mapping[str, Mapping[str, object]] | None = None,
 ) -> ArchiveInfo:
     """Store the archive of a stored certificate (once: an existing archive is kept).
 
@@ -81,9 +83,12 @@ def archive_residuals(
     existing = store.archive_info(certificate_id)
     if existing is not None:
         return existing
-    arrays, _ = validate_residuals(
-        plan, residuals, classified.components(), len(classified.problem.unknowns)
-    )
+    sent_fields = fields or {}
+    needed = [c for c in classified.components() if c not in sent_fields]
+    arrays, _ = validate_residuals(plan, residuals, needed, len(classified.problem.unknowns))
+    # fields mode: the model's fields are archived as sent (``fields.<component>.<name>``),
+    # so that a recomputation forms the residuals again from them
+    arrays.update(field_arrays(plan, sent_fields))
     request = {
         "problem": problem.model_dump(mode="json"),
         "problem_id": problem_id,
@@ -139,13 +144,16 @@ def recompute(contents: ArchiveContents, stored_document: Any) -> CertificateDoc
         if request.get("quadrature") is not None
         else None
     )
+    residuals = {k: v for k, v in contents.arrays.items() if not k.startswith(FIELDS_PREFIX)}
+    fields = split_field_arrays(contents.arrays)
     return certify(
         classified,
         str(request["problem_id"]),
         plan,
         dict(request["regularity"]),
-        dict(contents.arrays),
+        residuals,
         model,
+        fields=fields or None,
         quadrature=quadrature,
         project=request.get("project"),
         now=_created_at(stored_document),

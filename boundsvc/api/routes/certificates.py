@@ -3,10 +3,17 @@ from a residual archive (``POST /v1/certificates/{id}/verify``)."""
 
 from __future__ import annotations
 
+import binascii
 import datetime as dt
+import email.message
+import json
 from typing import Any
 
-from fastapi import APIRouter, Depends, Query, Request
+import numpy as np
+import orjson
+from fastapi import APIRouter, Depends, HTTPException, Query, Request
+from fastapi.exceptions import RequestValidationError
+from pydantic import ValidationError
 from starlette.concurrency import run_in_threadpool
 from starlette.responses import Response
 
@@ -14,6 +21,7 @@ from api_schemas import (
     ArchiveMetadata,
     CertificatePage,
     CertificateRequest,
+    EncodedArray,
     VerificationReport,
     VerifyRequest,
 )
@@ -27,6 +35,7 @@ from boundsvc.api.routes._verification import (
 )
 from boundsvc.certify import build_plan, certify
 from boundsvc.errors import BoundsvcError, NotFound
+from boundsvc.fields import FIELDS_PREFIX
 from boundsvc.settings import Settings
 from boundsvc.store import (
     ArchiveContents,
@@ -44,6 +53,25 @@ router = APIRouter(prefix="/v1", tags=["certificates"])
 JSON = "application/json"
 
 
+# Served by ``post_certificate_json`` (matched first, not in the schema): the body is read
+# into one buffer, parsed by orjson and its base64 residuals decoded straight into arrays
+# (FastAPI would keep the chunks, the joined body, the parsed text and the decoded bytes
+# at once). ``post_certificate`` below documents the same body in the OpenAPI document
+# and behaves the same if it is ever reached.
+@router.post("/certificates", status_code=201, include_in_schema=False)
+async def post_certificate_json(
+    request: Request,
+    store: Store = Depends(get_store),
+    caller: Caller = Depends(get_caller),
+    settings: Settings = Depends(get_settings_dep),
+) -> Response:
+    """Compute, store and return a certificate (residuals as JSON lists or base64)."""
+    parsed = await _json_body(request)
+    return await run_in_threadpool(
+        _validated_certificate, store, caller, settings.archive_residuals, [parsed]
+    )
+
+
 @router.post(
     "/certificates", status_code=201, responses={201: {"description": "the certificate (stored)"}}
 )
@@ -55,6 +83,107 @@ def post_certificate(
 ) -> Response:
     """Compute, store and return a certificate (residuals as JSON lists or base64)."""
     return create_certificate(store, caller, body, None, archive_default=settings.archive_residuals)
+
+
+def _validated_certificate(
+    store: Store, caller: Caller, archive_default: bool, holder: list[Any]
+) -> Response:
+    """Validate the parsed body (``holder[0]``, dropped once validated), decode its base64
+    residuals, then certify."""
+    body = _validate_body(holder.pop())
+    _decode_base64_residuals(body)
+    return create_certificate(store, caller, body, None, archive_default=archive_default)
+
+
+_EMPTY = object()  # no body at all (FastAPI: "Field required" at ``body``)
+
+
+def _is_json_type(content_type: str | None) -> bool:
+    """FastAPI's test: ``application/json`` or ``application/*+json`` (parameters ignored)."""
+    if not content_type:
+        return False  # FastAPI's strict content type: no header, no JSON
+    message = email.message.Message()
+    message["content-type"] = content_type
+    subtype = message.get_content_subtype()
+    return message.get_content_maintype() == "application" and (
+        subtype == "json" or subtype.endswith("+json")
+    )
+
+
+async def _json_body(request: Request) -> Any:
+    """The body as FastAPI handed it to validation, with FastAPI's errors (400 ``invalid_json``
+    with the position; 400 for a body that cannot be read or decoded), read into one buffer
+    (:func:`read_body`) and parsed by orjson; the buffer is dropped when parsed.
+
+    When orjson refuses a body, the standard ``json`` module (FastAPI's parser) decides: it
+    accepts a little more (``NaN``/``Infinity``, UTF-16/32 and a UTF-8 BOM, integers beyond 64
+    bits, lone surrogates) and reports the position of a syntax error as before.
+    """
+    try:
+        raw = await read_body(request)
+        if not raw:
+            return _EMPTY
+        if not _is_json_type(request.headers.get("content-type")):
+            return bytes(raw)  # FastAPI validates the raw bytes (a schema error)
+        try:
+            return orjson.loads(raw)
+        except orjson.JSONDecodeError:
+            return json.loads(raw)
+    except json.JSONDecodeError as exc:
+        raise RequestValidationError(
+            [
+                {
+                    "type": "json_invalid",
+                    "loc": ("body", exc.pos),
+                    "msg": "JSON decode error",
+                    "input": {},
+                    "ctx": {"error": exc.msg},
+                }
+            ]
+        ) from exc
+    except HTTPException:
+        raise
+    except Exception as exc:  # as FastAPI: undecodable bytes, nesting too deep, disconnect
+        raise HTTPException(status_code=400, detail="There was an error parsing the body") from exc
+
+
+def _validate_body(parsed: Any) -> CertificateRequest:
+    """``parsed`` validated as FastAPI does (``from_attributes``, errors under ``body``)."""
+    if parsed is _EMPTY:
+        errors: list[Any] = [
+            {"type": "missing", "loc": ("body",), "msg": "Field required", "input": None}
+        ]
+    else:
+        try:
+            return CertificateRequest.model_validate(parsed, from_attributes=True)
+        except ValidationError as exc:
+            errors = [
+                {**err, "loc": ("body", *err["loc"])} for err in exc.errors(include_url=False)
+            ]
+    raise RequestValidationError(errors)
+
+
+def _decode_base64_residuals(body: CertificateRequest) -> None:
+    """Replace each base64 residual of ``body`` by its array (a view of the decoded bytes) and
+    drop its text at once, so that text and bytes of one component at most coexist.
+
+    What does not decode cleanly (bad base64, a partial value) is left as it is: certifying
+    reports it where it did before (after the problem, the plan and the component names were
+    checked), with the same code. An array decodes to what the encoded value decodes to.
+    """
+    residuals: dict[str, Any] = body.residuals  # arrays go in
+    for name, values in residuals.items():
+        if not isinstance(values, EncodedArray):
+            continue
+        itemsize = 4 if values.dtype == "float32" else 8
+        try:
+            raw = binascii.a2b_base64(values.data, strict_mode=True)
+        except (binascii.Error, ValueError):
+            continue
+        if len(raw) % itemsize:
+            continue
+        residuals[name] = np.frombuffer(raw, dtype="<f4" if itemsize == 4 else "<f8")
+        del values, raw
 
 
 @router.post(
@@ -142,8 +271,13 @@ def create_certificate(
     problem, pid, classified = resolve_problem(store, body.problem, body.problem_id)
     plan = _plan_for(store, classified, pid, body)
     residuals: dict[str, Any] = dict(body.residuals)
-    if arrays:
-        residuals.update(arrays)
+    fields: dict[str, dict[str, Any]] = {c: dict(v) for c, v in (body.fields or {}).items()}
+    for name, value in (arrays or {}).items():
+        if name.startswith(FIELDS_PREFIX):  # an upload member ``fields.<component>.<name>``
+            component, _, field = name[len(FIELDS_PREFIX) :].partition(".")
+            fields.setdefault(component, {})[field] = value
+        else:
+            residuals[name] = value
     doc = certify(
         classified,
         pid,
@@ -153,6 +287,7 @@ def create_certificate(
         body.model,
         quadrature=body.quadrature,
         project=caller.write_project,
+        fields=fields or None,
     )
     stored = store.get_certificate(doc.id, None)
     if stored is None:
@@ -168,6 +303,7 @@ def create_certificate(
             body=body,
             residuals=residuals,
             project=caller.write_project,
+            fields=fields or None,
         )
     return Response(stored.document, status_code=201, media_type=JSON)
 
