@@ -91,6 +91,10 @@ _PLANS = _LRU(64, max_weight=4e7)  # weight: stored points (memory)
 SYMBOLIC_BUDGET_SECONDS: float | None = None  # set by the service (settings); None: no sandbox
 
 
+_INFLIGHT: dict[str, threading.Lock] = {}
+_INFLIGHT_GUARD = threading.Lock()
+
+
 def derive(problem: ProblemSpec, budget_seconds: float | None = None) -> Classified:
     """Classify a problem and derive its constants (cached by content hash).
 
@@ -102,14 +106,27 @@ def derive(problem: ProblemSpec, budget_seconds: float | None = None) -> Classif
     cached = _DERIVATIONS.get(key)
     if cached is not None:
         return cast(Classified, cached)
-    budget = budget_seconds if budget_seconds is not None else SYMBOLIC_BUDGET_SECONDS
-    if budget is not None:
-        from boundsvc.sandbox import sandbox
+    # single flight: concurrent requests for the same new problem wait for one derivation
+    # instead of each taking a symbolic worker (and finding them all busy)
+    with _INFLIGHT_GUARD:
+        lock = _INFLIGHT.setdefault(key, threading.Lock())
+    try:
+        with lock:
+            cached = _DERIVATIONS.get(key)
+            if cached is not None:
+                return cast(Classified, cached)
+            budget = budget_seconds if budget_seconds is not None else SYMBOLIC_BUDGET_SECONDS
+            if budget is not None:
+                from boundsvc.sandbox import sandbox
 
-        sandbox().check(problem.model_dump(mode="json"), budget)
-    classified = classify(problem)
-    _DERIVATIONS.put(key, classified)
-    return classified
+                sandbox().check(problem.model_dump(mode="json"), budget)
+            classified = classify(problem)
+            _DERIVATIONS.put(key, classified)
+            return classified
+    finally:
+        with _INFLIGHT_GUARD:
+            if _INFLIGHT.get(key) is lock and not lock.locked():
+                del _INFLIGHT[key]
 
 
 def problem_summary(
