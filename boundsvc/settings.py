@@ -75,8 +75,9 @@ class Settings:
             rate_limit_redis_url=env.get("BOUNDSVC_RATE_LIMIT_REDIS_URL") or None,
             idempotency_stale_seconds=_float(env, "BOUNDSVC_IDEMPOTENCY_STALE_SECONDS", 600.0),
             log_level=env.get("BOUNDSVC_LOG_LEVEL") or "info",
-            allow_anonymous=None if anonymous in (None, "") else _bool(
-                env, "BOUNDSVC_ALLOW_ANONYMOUS", False),
+            allow_anonymous=None
+            if anonymous in (None, "")
+            else _bool(env, "BOUNDSVC_ALLOW_ANONYMOUS", False),
         )
 
     def with_overrides(self, **changes: object) -> Settings:

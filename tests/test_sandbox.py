@@ -15,22 +15,27 @@ from boundsvc.store import open_store
 from tests.inprocess import InProcessClient
 
 # sympy expands this for minutes: (4 terms)^20 * (3 terms)^20 (measured: > 120 s in-process)
-SLOW = {"equation": "u_t = u_xx + (u + x + t + 1)^20*(u - x + 2)^20",
-        "space": {"x": [0.0, 1.0]}, "time": [0.0, 1.0]}
+SLOW = {
+    "equation": "u_t = u_xx + (u + x + t + 1)^20*(u - x + 2)^20",
+    "space": {"x": [0.0, 1.0]},
+    "time": [0.0, 1.0],
+}
 
 
 @pytest.fixture
 def client(tmp_path: Path) -> Iterator[InProcessClient]:
     store = open_store(f"sqlite:///{tmp_path}/s.sqlite3")
-    c = InProcessClient(build_app(Settings(database_url="unused",
-                                           symbolic_budget_seconds=2.0), store))
+    c = InProcessClient(
+        build_app(Settings(database_url="unused", symbolic_budget_seconds=2.0), store)
+    )
     yield c
     c.close()
     store.dispose()
 
 
 def test_too_much_symbolic_work_is_refused_while_the_service_answers(
-        client: InProcessClient) -> None:
+    client: InProcessClient,
+) -> None:
     result: dict[str, object] = {}
 
     def slow() -> None:
@@ -45,6 +50,10 @@ def test_too_much_symbolic_work_is_refused_while_the_service_answers(
     response = result["response"]
     assert response.status_code == 422  # type: ignore[attr-defined]
     assert response.json()["code"] == "problem_too_complex"  # type: ignore[attr-defined]
-    ok = client.post("/v1/problems", json={"problem": {
-        "equation": "u_t = 3*u_xx", "space": {"x": [0.0, 1.0]}, "time": [0.0, 1.0]}})
+    ok = client.post(
+        "/v1/problems",
+        json={
+            "problem": {"equation": "u_t = 3*u_xx", "space": {"x": [0.0, 1.0]}, "time": [0.0, 1.0]}
+        },
+    )
     assert ok.status_code == 200, ok.text

@@ -81,8 +81,9 @@ class BodyLimit:
 
 async def _too_large(scope: Scope, receive: Receive, send: Send, limit: int) -> None:
     request = Request(scope, receive)
-    response = problem_response(request, 413, "body_too_large",
-                                f"the request body exceeds the maximum of {limit} bytes")
+    response = problem_response(
+        request, 413, "body_too_large", f"the request body exceeds the maximum of {limit} bytes"
+    )
     await response(scope, receive, send)
 
 
@@ -108,16 +109,23 @@ def install_store_error_handlers(app: FastAPI) -> None:
     @app.exception_handler(StoreUnavailable)
     async def _store_down(request: Request, exc: StoreUnavailable) -> Response:
         log.warning("store unavailable: %s", exc)
-        return problem_response(request, 503, "store_unavailable",
-                                "the database is unavailable; retry later",
-                                headers={"Retry-After": "5"})
+        return problem_response(
+            request,
+            503,
+            "store_unavailable",
+            "the database is unavailable; retry later",
+            headers={"Retry-After": "5"},
+        )
 
     @app.exception_handler(SchemaOutOfDate)
     async def _schema_behind(request: Request, exc: SchemaOutOfDate) -> Response:
         log.error("database schema not usable: %s", exc, extra={"action": exc.command})
-        return problem_response(request, 503, "schema_out_of_date",
-                                "the database schema is not current; the operator must run "
-                                "boundsvc db upgrade")
+        return problem_response(
+            request,
+            503,
+            "schema_out_of_date",
+            "the database schema is not current; the operator must run boundsvc db upgrade",
+        )
 
 
 def build_app(settings: Settings | None = None, store: Store | None = None) -> FastAPI:
@@ -134,7 +142,8 @@ def build_app(settings: Settings | None = None, store: Store | None = None) -> F
         title="boundsvc",
         version=__version__,
         description="Certificates of error bounds for neural-network PDE surrogates.",
-        docs_url="/docs", redoc_url=None,
+        docs_url="/docs",
+        redoc_url=None,
     )
     app.state.settings = settings
     app.state.store = store
@@ -147,12 +156,21 @@ def build_app(settings: Settings | None = None, store: Store | None = None) -> F
     install_store_error_handlers(app)
     install_openapi(app)  # errors documented as problem+json
 
-    for router in (meta.router, problems.router, plans.router, certificates.router,
-                   reports.router, studies.router, dashboard.router,
-                   keys_router, metrics_router):
+    for router in (
+        meta.router,
+        problems.router,
+        plans.router,
+        certificates.router,
+        reports.router,
+        studies.router,
+        dashboard.router,
+        keys_router,
+        metrics_router,
+    ):
         app.include_router(router)
-    app.add_middleware(IdempotencyMiddleware, store=store,
-                       stale_after_seconds=settings.idempotency_stale_seconds)
+    app.add_middleware(
+        IdempotencyMiddleware, store=store, stale_after_seconds=settings.idempotency_stale_seconds
+    )
     limiter = make_limiter(settings)
     if limiter is not None:
         app.add_middleware(RateLimitMiddleware, limiter=limiter)

@@ -42,13 +42,21 @@ def connection_options() -> argparse.ArgumentParser:
     """A parent parser with ``--url``, ``--timeout``, ``--retries`` and ``--json``."""
     parent = argparse.ArgumentParser(add_help=False)
     group = parent.add_argument_group("service")
-    group.add_argument("--url", default=None,
-                       help="service URL (default $BOUNDSVC_URL, else http://127.0.0.1:8000); "
-                            "the API key is read from $BOUNDSVC_API_KEY")
-    group.add_argument("--timeout", type=float, default=120.0,
-                       help="seconds to wait for an answer (default 120)")
-    group.add_argument("--retries", type=int, default=3,
-                       help="retries on connection errors, 429 and 502-504 (default 3)")
+    group.add_argument(
+        "--url",
+        default=None,
+        help="service URL (default $BOUNDSVC_URL, else http://127.0.0.1:8000); "
+        "the API key is read from $BOUNDSVC_API_KEY",
+    )
+    group.add_argument(
+        "--timeout", type=float, default=120.0, help="seconds to wait for an answer (default 120)"
+    )
+    group.add_argument(
+        "--retries",
+        type=int,
+        default=3,
+        help="retries on connection errors, 429 and 502-504 (default 3)",
+    )
     parent.add_argument("--json", action="store_true", help="machine-readable output on stdout")
     return parent
 
@@ -61,8 +69,9 @@ def _default_factory(args: argparse.Namespace) -> BoundsvcClient:
     if not args.timeout > 0:
         raise UsageError("--timeout must be positive")
     try:
-        return BoundsvcClient(args.url, timeout=args.timeout,
-                              retries=RetryPolicy(max_retries=args.retries))
+        return BoundsvcClient(
+            args.url, timeout=args.timeout, retries=RetryPolicy(max_retries=args.retries)
+        )
     except ValueError as exc:
         raise UsageError(str(exc)) from exc
 
@@ -83,12 +92,18 @@ def service_exit_code(exc: BoundsvcClientError) -> int:
 
 
 def error_json(exc: BoundsvcClientError) -> dict[str, Any]:
-    return {"status": exc.status, "code": exc.code, "detail": exc.detail,
-            "errors": [e.model_dump() for e in exc.errors], "request_id": exc.request_id}
+    return {
+        "status": exc.status,
+        "code": exc.code,
+        "detail": exc.detail,
+        "errors": [e.model_dump() for e in exc.errors],
+        "request_id": exc.request_id,
+    }
 
 
-def run_remote(body: Callable[[argparse.Namespace, BoundsvcClient], int]
-               ) -> Callable[[argparse.Namespace], int]:
+def run_remote(
+    body: Callable[[argparse.Namespace, BoundsvcClient], int],
+) -> Callable[[argparse.Namespace], int]:
     """Wrap a command: make the client, map client errors and usage errors to exit codes."""
 
     def command(args: argparse.Namespace) -> int:
@@ -144,8 +159,9 @@ def read_regularity(path: str) -> dict[str, float | str]:
         raise UsageError(f"{path}: a regularity file holds a JSON object of key -> value")
     for key, value in data.items():
         if isinstance(value, bool) or not isinstance(value, int | float | str):
-            raise UsageError(f"{path}: regularity[{key!r}] must be a number or an expression "
-                             "string in t")
+            raise UsageError(
+                f"{path}: regularity[{key!r}] must be a number or an expression string in t"
+            )
     return data
 
 
@@ -245,16 +261,19 @@ def certificate_details(cert: Certificate) -> list[str]:
     """Everything a reader needs: terms, constants, time profile, hypotheses, warnings."""
     lines = certificate_summary(cert)
     when = created_at(cert)
-    lines.append(f"  created {cert.provenance.created_at}"
-                 + (f" ({format_age((dt.datetime.now(dt.UTC) - when).total_seconds())} ago)"
-                    if when else ""))
+    lines.append(
+        f"  created {cert.provenance.created_at}"
+        + (f" ({format_age((dt.datetime.now(dt.UTC) - when).total_seconds())} ago)" if when else "")
+    )
     if cert.vacuous_from is not None:
         lines.append(f"  vacuous from t = {fmt(cert.vacuous_from)}")
     prof = cert.time_profile
     if prof is not None and prof.t:
         picks = sorted(set(np.linspace(0, len(prof.t) - 1, min(6, len(prof.t))).astype(int)))
-        lines.append("  time profile: " + "  ".join(
-            f"t={prof.t[i]:.3g}: {fmt(prof.l2_error_bound[i])}" for i in picks))
+        lines.append(
+            "  time profile: "
+            + "  ".join(f"t={prof.t[i]:.3g}: {fmt(prof.l2_error_bound[i])}" for i in picks)
+        )
     if cert.terms:
         lines.append("  terms:")
         for term in cert.terms:
@@ -263,8 +282,10 @@ def certificate_details(cert: Certificate) -> list[str]:
     if cert.constants:
         lines.append("  constants:")
         for const in cert.constants:
-            lines.append(f"    {const.symbol:<10} = {const.expression}   value {fmt(const.value)}"
-                         + (f"  [{const.rigor}]" if const.rigor else ""))
+            lines.append(
+                f"    {const.symbol:<10} = {const.expression}   value {fmt(const.value)}"
+                + (f"  [{const.rigor}]" if const.rigor else "")
+            )
     if cert.regularity:
         lines.append("  regularity: " + ", ".join(f"{k}={v}" for k, v in cert.regularity.items()))
     if cert.hypotheses:

@@ -32,9 +32,16 @@ class ProgressBar:
         Default: only when ``stream`` is a terminal (logs of CI jobs stay readable).
     """
 
-    def __init__(self, label: str, *, unit: str = "bytes", stream: TextIO | None = None,
-                 enabled: bool | None = None, width: int = 28,
-                 min_interval: float = 0.05) -> None:
+    def __init__(
+        self,
+        label: str,
+        *,
+        unit: str = "bytes",
+        stream: TextIO | None = None,
+        enabled: bool | None = None,
+        width: int = 28,
+        min_interval: float = 0.05,
+    ) -> None:
         self.label = label
         self.unit = unit
         self.stream = stream if stream is not None else sys.stderr

@@ -91,8 +91,11 @@ def _cutoff(args: argparse.Namespace) -> dt.datetime | None:
     try:
         seconds = parse_duration(args.older_than)
     except UsageError:
-        print(f"boundsvc db {args.db_command}: --older-than {args.older_than!r}: expected a "
-              "duration like 7d, 12h, 1d12h, 90m", file=sys.stderr)
+        print(
+            f"boundsvc db {args.db_command}: --older-than {args.older_than!r}: expected a "
+            "duration like 7d, 12h, 1d12h, 90m",
+            file=sys.stderr,
+        )
         return None
     return dt.datetime.now(dt.UTC) - dt.timedelta(seconds=seconds)
 
@@ -109,8 +112,11 @@ def _purge(args: argparse.Namespace, what: str) -> int:
         # deleting it would let a retry run the request a second time
         stale = Settings.from_env().idempotency_stale_seconds
         if cutoff > dt.datetime.now(dt.UTC) - dt.timedelta(seconds=stale):
-            print(f"boundsvc db {args.db_command}: --older-than must be at least "
-                  f"BOUNDSVC_IDEMPOTENCY_STALE_SECONDS ({stale:g} s)", file=sys.stderr)
+            print(
+                f"boundsvc db {args.db_command}: --older-than must be at least "
+                f"BOUNDSVC_IDEMPOTENCY_STALE_SECONDS ({stale:g} s)",
+                file=sys.stderr,
+            )
             return 2
     try:
         store = open_store(database_url(args), create=False)
@@ -147,16 +153,23 @@ def register(sub: Any) -> None:
     st.add_argument("--json", action="store_true", help="machine-readable output")
     st.set_defaults(func=_status)
     for name, what, helptext in (
-        ("purge-idempotency", "idempotency",
-         "delete Idempotency-Key records last updated before --older-than (retries of "
-         "those requests then run again)"),
-        ("purge-archives", "archives",
-         "delete residual archives stored before --older-than (their certificates stay, "
-         "but can no longer be re-verified)"),
+        (
+            "purge-idempotency",
+            "idempotency",
+            "delete Idempotency-Key records last updated before --older-than (retries of "
+            "those requests then run again)",
+        ),
+        (
+            "purge-archives",
+            "archives",
+            "delete residual archives stored before --older-than (their certificates stay, "
+            "but can no longer be re-verified)",
+        ),
     ):
         purge = actions.add_parser(name, help=helptext, description=helptext)
         add_database_url(purge)
-        purge.add_argument("--older-than", required=True, metavar="DURATION",
-                           help="e.g. 7d, 12h, 1d12h, 90m, 2w")
+        purge.add_argument(
+            "--older-than", required=True, metavar="DURATION", help="e.g. 7d, 12h, 1d12h, 90m, 2w"
+        )
         purge.add_argument("--json", action="store_true", help="machine-readable output")
         purge.set_defaults(func=lambda args, what=what: _purge(args, what))

@@ -56,8 +56,7 @@ def _problem(args: argparse.Namespace, client: BoundsvcClient) -> int:
         name = const.get("name", "")
         value = const.get("value")
         shown = "" if not isinstance(value, int | float) else f"   = {fmt(float(value))}"
-        print(f"    {const.get('symbol', '?')} = {const.get('expression', '?')}{shown}"
-              f"   ({name})")
+        print(f"    {const.get('symbol', '?')} = {const.get('expression', '?')}{shown}   ({name})")
         latex = const.get("latex")
         if latex:
             print(f"      LaTeX: {latex}")
@@ -84,10 +83,18 @@ def _plan(args: argparse.Namespace, client: BoundsvcClient) -> int:
     if args.output:
         plan.save(args.output)
     if args.json:
-        emit_json({"plan_id": plan.plan_id, "problem_id": plan.problem_id, "rule": plan.rule,
-                   "components": {n: {"size": c.size, "axes": list(c.axes)}
-                                  for n, c in plan.components.items()},
-                   "output": args.output, "warnings": list(plan.warnings)})
+        emit_json(
+            {
+                "plan_id": plan.plan_id,
+                "problem_id": plan.problem_id,
+                "rule": plan.rule,
+                "components": {
+                    n: {"size": c.size, "axes": list(c.axes)} for n, c in plan.components.items()
+                },
+                "output": args.output,
+                "warnings": list(plan.warnings),
+            }
+        )
         return EXIT_OK
     sizes = ", ".join(f"{name} {size}" for name, size in plan.sizes.items())
     print(f"plan {plan.plan_id} ({plan.rule}) for problem {plan.problem_id}: {sizes} points")
@@ -117,12 +124,26 @@ def _certify(args: argparse.Namespace, client: BoundsvcClient) -> int:
             raise UsageError(f"cannot read the plan file {args.plan}: {exc}") from exc
     regularity = read_regularity(args.regularity)
     residuals = read_residuals(args.residuals)
-    model = {k: v for k, v in (("name", args.model_name), ("version", args.model_version),
-                               ("epoch", args.epoch)) if v is not None}
+    model = {
+        k: v
+        for k, v in (
+            ("name", args.model_name),
+            ("version", args.model_version),
+            ("epoch", args.epoch),
+        )
+        if v is not None
+    }
     bar = ProgressBar("uploading residuals", enabled=False if args.json else None)
     try:
-        cert = client.certify(problem, plan_id, regularity, residuals, model=model or None,
-                              encoding=args.encoding, progress=bar)
+        cert = client.certify(
+            problem,
+            plan_id,
+            regularity,
+            residuals,
+            model=model or None,
+            encoding=args.encoding,
+            progress=bar,
+        )
     except ValueError as exc:
         raise UsageError(str(exc)) from exc
     if args.json:
@@ -150,9 +171,14 @@ def _list(args: argparse.Namespace, client: BoundsvcClient) -> int:
         raise UsageError("--limit must be positive")
     if args.version and not args.model:
         raise UsageError("--version needs --model")
-    page = client.certificates_page(model=args.model, version=args.version,
-                                    family=args.family, status=args.status,
-                                    limit=args.limit, cursor=args.cursor)
+    page = client.certificates_page(
+        model=args.model,
+        version=args.version,
+        family=args.family,
+        status=args.status,
+        limit=args.limit,
+        cursor=args.cursor,
+    )
     if args.json:
         emit_json(dump_model(page))
         return EXIT_OK
@@ -176,9 +202,11 @@ def _report(args: argparse.Namespace, client: BoundsvcClient) -> int:
         report = client.report(args.id)
     except BoundsvcClientError as exc:
         if exc.status == 404 and exc.code == "not_found":
-            message = ("reports are not available on this service: GET "
-                       f"/v1/certificates/{args.id}/report answered 404 not_found (the route "
-                       "does not exist there yet); `boundsvc show` prints the certificate")
+            message = (
+                "reports are not available on this service: GET "
+                f"/v1/certificates/{args.id}/report answered 404 not_found (the route "
+                "does not exist there yet); `boundsvc show` prints the certificate"
+            )
             if args.json:
                 emit_json({"available": False, "certificate_id": args.id, "detail": message})
             print(message, file=sys.stderr)
@@ -187,13 +215,25 @@ def _report(args: argparse.Namespace, client: BoundsvcClient) -> int:
     if args.output:
         Path(args.output).write_bytes(report.content)
         if args.json:
-            emit_json({"available": True, "certificate_id": args.id,
-                       "media_type": report.media_type, "output": args.output})
+            emit_json(
+                {
+                    "available": True,
+                    "certificate_id": args.id,
+                    "media_type": report.media_type,
+                    "output": args.output,
+                }
+            )
         else:
             print(f"report ({report.media_type}) saved to {args.output}")
     elif args.json:
-        emit_json({"available": True, "certificate_id": args.id,
-                   "media_type": report.media_type, "content": report.text})
+        emit_json(
+            {
+                "available": True,
+                "certificate_id": args.id,
+                "media_type": report.media_type,
+                "content": report.text,
+            }
+        )
     else:
         sys.stdout.write(report.text)
     return EXIT_OK
@@ -202,15 +242,23 @@ def _report(args: argparse.Namespace, client: BoundsvcClient) -> int:
 def register(sub: Any) -> None:
     parent = connection_options()
 
-    p = sub.add_parser("problem", parents=[parent], help="classify a problem, print its constants",
-                       description="Classify a problem (JSON file) and derive its stability "
-                                   "constants; prints the formulas.")
+    p = sub.add_parser(
+        "problem",
+        parents=[parent],
+        help="classify a problem, print its constants",
+        description="Classify a problem (JSON file) and derive its stability "
+        "constants; prints the formulas.",
+    )
     p.add_argument("file", help="problem JSON file (the problem object or {'problem': ...})")
     p.add_argument("--regularity", help="regularity JSON file: also evaluate the constants")
     p.set_defaults(func=run_remote(_problem))
 
-    p = sub.add_parser("plan", parents=[parent], help="request a quadrature plan",
-                       description="Request a Gauss-Legendre plan and save its points.")
+    p = sub.add_parser(
+        "plan",
+        parents=[parent],
+        help="request a quadrature plan",
+        description="Request a Gauss-Legendre plan and save its points.",
+    )
     p.add_argument("file", nargs="?", help="problem JSON file")
     p.add_argument("--problem-id", help="a stored problem instead of FILE")
     p.add_argument("--points", required=True, help="nodes per axis, e.g. t=32,x=32")
@@ -218,15 +266,20 @@ def register(sub: Any) -> None:
     p.add_argument("-o", "--output", help="write plan.npz or plan.json")
     p.set_defaults(func=run_remote(_plan))
 
-    p = sub.add_parser("certify", parents=[parent], help="upload residuals, get a certificate",
-                       description="Certify residuals evaluated at a plan's points.")
+    p = sub.add_parser(
+        "certify",
+        parents=[parent],
+        help="upload residuals, get a certificate",
+        description="Certify residuals evaluated at a plan's points.",
+    )
     p.add_argument("--problem", help="problem JSON file")
     p.add_argument("--problem-id", help="a stored problem instead of --problem")
     p.add_argument("--regularity", required=True, help="regularity JSON file")
     p.add_argument("--plan-id", help="the plan the residuals were evaluated on")
     p.add_argument("--plan", help="a plan file from `boundsvc plan -o` instead of --plan-id")
-    p.add_argument("--residuals", required=True,
-                   help="residuals.npz (one array per component) or .json")
+    p.add_argument(
+        "--residuals", required=True, help="residuals.npz (one array per component) or .json"
+    )
     p.add_argument("--model-name")
     p.add_argument("--model-version")
     p.add_argument("--epoch", type=int)

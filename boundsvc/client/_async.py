@@ -114,11 +114,19 @@ class AsyncBoundsvcClient:
                 content = _achunks(call)
             try:
                 response = await self._http.request(
-                    call.method, self.base_url + call.path, params=call.params or None,
-                    content=content, headers=headers, timeout=self._timeout)
+                    call.method,
+                    self.base_url + call.path,
+                    params=call.params or None,
+                    content=content,
+                    headers=headers,
+                    timeout=self._timeout,
+                )
             except httpx.TransportError as exc:
-                wait = self.retry.delay(attempt) if (
-                    call.retry_allowed and _is_connection_error(exc)) else None
+                wait = (
+                    self.retry.delay(attempt)
+                    if (call.retry_allowed and _is_connection_error(exc))
+                    else None
+                )
                 if wait is None:
                     raise unavailable(exc, call, self.base_url, attempt + 1) from exc
                 await self._sleep(wait)
@@ -145,9 +153,13 @@ class AsyncBoundsvcClient:
         call = _Call("GET", "/v1/families")
         return parse_model(await self._send(call), FamilyList, call).families
 
-    async def problem(self, problem: ProblemLike, *,
-                      regularity: Mapping[str, float | str] | None = None,
-                      idempotent: bool = True) -> ProblemResponse:
+    async def problem(
+        self,
+        problem: ProblemLike,
+        *,
+        regularity: Mapping[str, float | str] | None = None,
+        idempotent: bool = True,
+    ) -> ProblemResponse:
         """See :meth:`BoundsvcClient.problem`."""
         call = call_problem(problem, regularity, idempotent)
         return parse_model(await self._send(call), ProblemResponse, call)
@@ -157,9 +169,16 @@ class AsyncBoundsvcClient:
         call = _Call("GET", f"/v1/problems/{_path_id(problem_id, 'problem id')}")
         return parse_model(await self._send(call), ProblemResponse, call)
 
-    async def plan(self, problem: ProblemRef, *, points: Mapping[str, int] | None = None,
-                   panels: Mapping[str, int] | None = None, rule: str = "gauss-legendre",
-                   idempotent: bool = True, **options: Any) -> Plan:
+    async def plan(
+        self,
+        problem: ProblemRef,
+        *,
+        points: Mapping[str, int] | None = None,
+        panels: Mapping[str, int] | None = None,
+        rule: str = "gauss-legendre",
+        idempotent: bool = True,
+        **options: Any,
+    ) -> Plan:
         """See :meth:`BoundsvcClient.plan`."""
         call = call_plan(problem, points, panels, rule, idempotent, options)
         return Plan.from_response(parse_model(await self._send(call), PlanResponse, call))
@@ -184,8 +203,18 @@ class AsyncBoundsvcClient:
         archive: bool | None = None,
     ) -> Certificate:
         """See :meth:`BoundsvcClient.certify`."""
-        call = call_certify(problem, plan, regularity, residuals, model, encoding, idempotent,
-                            idempotency_key, progress, archive)
+        call = call_certify(
+            problem,
+            plan,
+            regularity,
+            residuals,
+            model,
+            encoding,
+            idempotent,
+            idempotency_key,
+            progress,
+            archive,
+        )
         return parse_model(await self._send(call), Certificate, call)
 
     async def certificate(self, certificate_id: str) -> Certificate:
@@ -193,23 +222,43 @@ class AsyncBoundsvcClient:
         call = _Call("GET", f"/v1/certificates/{_path_id(certificate_id, 'certificate id')}")
         return parse_model(await self._send(call), Certificate, call)
 
-    async def certificates_page(self, *, model: str | None = None, version: str | None = None,
-                                family: str | None = None, status: str | None = None,
-                                limit: int = 50, cursor: str | None = None) -> CertificatePage:
+    async def certificates_page(
+        self,
+        *,
+        model: str | None = None,
+        version: str | None = None,
+        family: str | None = None,
+        status: str | None = None,
+        limit: int = 50,
+        cursor: str | None = None,
+    ) -> CertificatePage:
         """One page of the certificate list, newest first."""
         call = call_list(model, version, family, status, limit, cursor)
         return parse_model(await self._send(call), CertificatePage, call)
 
-    async def certificates(self, *, model: str | None = None, version: str | None = None,
-                           family: str | None = None, status: str | None = None,
-                           limit: int | None = None, cursor: str | None = None,
-                           page_size: int = 100) -> AsyncIterator[CertificateSummary]:
+    async def certificates(
+        self,
+        *,
+        model: str | None = None,
+        version: str | None = None,
+        family: str | None = None,
+        status: str | None = None,
+        limit: int | None = None,
+        cursor: str | None = None,
+        page_size: int = 100,
+    ) -> AsyncIterator[CertificateSummary]:
         """See :meth:`BoundsvcClient.certificates` (``async for``)."""
         remaining = limit
         while remaining is None or remaining > 0:
             size = page_size if remaining is None else min(page_size, remaining)
-            page = await self.certificates_page(model=model, version=version, family=family,
-                                                status=status, limit=size, cursor=cursor)
+            page = await self.certificates_page(
+                model=model,
+                version=version,
+                family=family,
+                status=status,
+                limit=size,
+                cursor=cursor,
+            )
             for item in page.items:
                 yield item
             if remaining is not None:
@@ -218,15 +267,15 @@ class AsyncBoundsvcClient:
                 return
             cursor = page.next_cursor
 
-    async def latest_certificate(self, model: str,
-                                 version: str | None = None) -> Certificate | None:
+    async def latest_certificate(
+        self, model: str, version: str | None = None
+    ) -> Certificate | None:
         """The newest certificate of a model (and version), or ``None``."""
         async for item in self.certificates(model=model, version=version, limit=1):
             return await self.certificate(item.id)
         return None
 
-    async def verify(self, certificate_id: str, *,
-                     rtol: float | None = None) -> VerificationReport:
+    async def verify(self, certificate_id: str, *, rtol: float | None = None) -> VerificationReport:
         """See :meth:`BoundsvcClient.verify`."""
         call = call_verify(certificate_id, rtol)
         return parse_model(await self._send(call), VerificationReport, call)

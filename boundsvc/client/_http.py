@@ -161,8 +161,9 @@ def _problem_code(response: httpx.Response) -> str | None:
     return code if isinstance(code, str) else None
 
 
-def retry_delay(policy: RetryPolicy, call: _Call, response: httpx.Response,
-                attempt: int) -> float | None:
+def retry_delay(
+    policy: RetryPolicy, call: _Call, response: httpx.Response, attempt: int
+) -> float | None:
     """Seconds to wait before repeating ``call`` after ``response``; ``None``: do not.
 
     Besides 429/502/503/504, a 409 ``idempotency_in_progress`` is retried: the service says
@@ -171,8 +172,10 @@ def retry_delay(policy: RetryPolicy, call: _Call, response: httpx.Response,
     if not call.retry_allowed:
         return None
     if response.status_code in policy.statuses or (
-            response.status_code == 409 and call.idempotency_key is not None
-            and _problem_code(response) == IN_PROGRESS):
+        response.status_code == 409
+        and call.idempotency_key is not None
+        and _problem_code(response) == IN_PROGRESS
+    ):
         return policy.delay(attempt, response.headers.get("retry-after"))
     return None
 
@@ -180,8 +183,10 @@ def retry_delay(policy: RetryPolicy, call: _Call, response: httpx.Response,
 def _is_connection_error(exc: httpx.TransportError) -> bool:
     """The request did not get an answer for reasons of the connection, not of the server's
     work: refused, reset before a response, or the connect/pool timeout."""
-    return isinstance(exc, httpx.ConnectError | httpx.ConnectTimeout | httpx.PoolTimeout
-                      | httpx.RemoteProtocolError)
+    return isinstance(
+        exc,
+        httpx.ConnectError | httpx.ConnectTimeout | httpx.PoolTimeout | httpx.RemoteProtocolError,
+    )
 
 
 # ---------------------------------------------------------------------------
@@ -208,8 +213,10 @@ class _Call:
         return self.method == "GET" or self.retry_safe or self.idempotency_key is not None
 
     def headers(self) -> dict[str, str]:
-        out = {"Accept": f"{self.accept}, application/problem+json",
-               "X-Request-ID": uuid.uuid4().hex}
+        out = {
+            "Accept": f"{self.accept}, application/problem+json",
+            "X-Request-ID": uuid.uuid4().hex,
+        }
         if self.body is not None:
             out["Content-Type"] = "application/json"
             out["Content-Length"] = str(len(self.body))
@@ -236,8 +243,10 @@ def _json_bytes(body: Mapping[str, Any]) -> bytes:
     try:
         return json.dumps(body, allow_nan=False, separators=(",", ":")).encode()
     except ValueError as exc:
-        raise ValueError(f"the request cannot be sent as JSON: {exc} (every number, e.g. a "
-                         "regularity value, must be finite)") from exc
+        raise ValueError(
+            f"the request cannot be sent as JSON: {exc} (every number, e.g. a "
+            "regularity value, must be finite)"
+        ) from exc
 
 
 def _idempotency(idempotent: bool, key: str | None) -> str | None:
@@ -269,8 +278,7 @@ def _model_json(model: ModelLike | None) -> dict[str, Any] | None:
     return ModelInfo.model_validate(dict(model)).model_dump(mode="json", exclude_none=True)
 
 
-def encode_residuals(residuals: ResidualsLike,
-                     encoding: Encoding = "base64") -> dict[str, Any]:
+def encode_residuals(residuals: ResidualsLike, encoding: Encoding = "base64") -> dict[str, Any]:
     """The wire form of residual arrays.
 
     Parameters
@@ -298,17 +306,23 @@ def encode_residuals(residuals: ResidualsLike,
         if arr.ndim == 2 and arr.shape[1] == 1:
             arr = arr[:, 0]
         if arr.ndim not in (1, 2):
-            raise ValueError(f"residuals[{name!r}] must have shape (n,) or (n, equations), "
-                             f"got {arr.shape}")
+            raise ValueError(
+                f"residuals[{name!r}] must have shape (n,) or (n, equations), got {arr.shape}"
+            )
         if encoding == "base64":
             data = np.ascontiguousarray(arr, dtype="<f8").tobytes()
-            out[name] = {"dtype": "float64", "encoding": "base64",
-                         "data": base64.b64encode(data).decode("ascii")}
+            out[name] = {
+                "dtype": "float64",
+                "encoding": "base64",
+                "data": base64.b64encode(data).decode("ascii"),
+            }
         else:
             bad = np.flatnonzero(~np.isfinite(arr.reshape(arr.shape[0], -1)).all(axis=1))
             if bad.size:
-                raise ValueError(f"residuals[{name!r}] is not finite at index {int(bad[0])} "
-                                 "(JSON has no NaN or infinity)")
+                raise ValueError(
+                    f"residuals[{name!r}] is not finite at index {int(bad[0])} "
+                    "(JSON has no NaN or infinity)"
+                )
             out[name] = arr.tolist()
     return out
 
@@ -320,13 +334,15 @@ def _regularity_json(regularity: Mapping[str, float | str]) -> dict[str, float |
     return out
 
 
-def call_problem(problem: ProblemLike, regularity: Mapping[str, float | str] | None,
-                 idempotent: bool) -> _Call:
+def call_problem(
+    problem: ProblemLike, regularity: Mapping[str, float | str] | None, idempotent: bool
+) -> _Call:
     body: dict[str, Any] = {"problem": _problem_json(problem)}
     if regularity is not None:
         body["regularity"] = _regularity_json(regularity)
-    return _Call("POST", "/v1/problems", _json_bytes(body),
-                 idempotency_key=_idempotency(idempotent, None))
+    return _Call(
+        "POST", "/v1/problems", _json_bytes(body), idempotency_key=_idempotency(idempotent, None)
+    )
 
 
 #: ``POST /v1/plans`` fields beyond points and panels, passed through as given (see
@@ -335,21 +351,32 @@ def call_problem(problem: ProblemLike, regularity: Mapping[str, float | str] | N
 PLAN_OPTIONS = ("n", "replicates", "seed", "weights", "components", "optional_components")
 
 
-def call_plan(problem: ProblemRef, points: Mapping[str, int] | None,
-              panels: Mapping[str, int] | None, rule: str, idempotent: bool,
-              options: Mapping[str, Any] | None = None) -> _Call:
-    body: dict[str, Any] = {**_problem_ref(problem), "rule": rule,
-                            "points": {k: int(v) for k, v in (points or {}).items()}}
+def call_plan(
+    problem: ProblemRef,
+    points: Mapping[str, int] | None,
+    panels: Mapping[str, int] | None,
+    rule: str,
+    idempotent: bool,
+    options: Mapping[str, Any] | None = None,
+) -> _Call:
+    body: dict[str, Any] = {
+        **_problem_ref(problem),
+        "rule": rule,
+        "points": {k: int(v) for k, v in (points or {}).items()},
+    }
     if panels:
         body["panels"] = {k: int(v) for k, v in panels.items()}
     for name, value in (options or {}).items():
         if name not in PLAN_OPTIONS:
-            raise TypeError(f"plan() got an unexpected option {name!r}; "
-                            f"the options are {', '.join(PLAN_OPTIONS)}")
+            raise TypeError(
+                f"plan() got an unexpected option {name!r}; "
+                f"the options are {', '.join(PLAN_OPTIONS)}"
+            )
         if value is not None:
             body[name] = list(value) if name == "optional_components" else value
-    return _Call("POST", "/v1/plans", _json_bytes(body),
-                 idempotency_key=_idempotency(idempotent, None))
+    return _Call(
+        "POST", "/v1/plans", _json_bytes(body), idempotency_key=_idempotency(idempotent, None)
+    )
 
 
 def call_certify(
@@ -365,23 +392,42 @@ def call_certify(
     archive: bool | None = None,
 ) -> _Call:
     plan_id = plan.plan_id if isinstance(plan, Plan) else str(plan)
-    body: dict[str, Any] = {**_problem_ref(problem), "plan_id": plan_id,
-                            "regularity": _regularity_json(regularity),
-                            "residuals": encode_residuals(residuals, encoding)}
+    body: dict[str, Any] = {
+        **_problem_ref(problem),
+        "plan_id": plan_id,
+        "regularity": _regularity_json(regularity),
+        "residuals": encode_residuals(residuals, encoding),
+    }
     model_json = _model_json(model)
     if model_json is not None:
         body["model"] = model_json
     if archive is not None:
         body["archive"] = bool(archive)
-    return _Call("POST", "/v1/certificates", _json_bytes(body),
-                 idempotency_key=_idempotency(idempotent, idempotency_key), progress=progress)
+    return _Call(
+        "POST",
+        "/v1/certificates",
+        _json_bytes(body),
+        idempotency_key=_idempotency(idempotent, idempotency_key),
+        progress=progress,
+    )
 
 
-def call_list(model: str | None, version: str | None, family: str | None, status: str | None,
-              limit: int, cursor: str | None) -> _Call:
+def call_list(
+    model: str | None,
+    version: str | None,
+    family: str | None,
+    status: str | None,
+    limit: int,
+    cursor: str | None,
+) -> _Call:
     params: dict[str, str | int] = {"limit": int(limit)}
-    for key, value in (("model", model), ("model_version", version), ("family", family),
-                       ("status", status), ("cursor", cursor)):
+    for key, value in (
+        ("model", model),
+        ("model_version", version),
+        ("family", family),
+        ("status", status),
+        ("cursor", cursor),
+    ):
         if value is not None:
             params[key] = value
     return _Call("GET", "/v1/certificates", params=params)
@@ -408,8 +454,9 @@ def _path_id(value: str, what: str) -> str:
 # ---------------------------------------------------------------------------
 
 
-def error_from_response(response: httpx.Response, call: _Call,
-                        statuses: frozenset[int]) -> BoundsvcClientError:
+def error_from_response(
+    response: httpx.Response, call: _Call, statuses: frozenset[int]
+) -> BoundsvcClientError:
     """The client error for a 4xx/5xx answer, from its problem+json body when it has one."""
     url = str(response.request.url) if response.request is not None else call.path
     rid = response.headers.get("x-request-id")
@@ -426,17 +473,32 @@ def error_from_response(response: httpx.Response, call: _Call,
         details = ProblemDetails.model_validate(body)
     except ValidationError:
         text = response.text.strip()[:500] or response.reason_phrase
-        return kind(text, status=response.status_code, code=f"http_{response.status_code}",
-                    request_id=rid, method=call.method, url=url, body=body)
+        return kind(
+            text,
+            status=response.status_code,
+            code=f"http_{response.status_code}",
+            request_id=rid,
+            method=call.method,
+            url=url,
+            body=body,
+        )
     if response.status_code == 429 and "retry-after" in response.headers:
         body.setdefault("retry_after", response.headers["retry-after"])
-    return kind(details.detail, status=response.status_code, code=details.code,
-                errors=details.errors, request_id=details.request_id or rid,
-                method=call.method, url=url, body=body)
+    return kind(
+        details.detail,
+        status=response.status_code,
+        code=details.code,
+        errors=details.errors,
+        request_id=details.request_id or rid,
+        method=call.method,
+        url=url,
+        body=body,
+    )
 
 
-def unavailable(exc: httpx.TransportError, call: _Call, base_url: str,
-                attempts: int) -> ServiceUnavailable:
+def unavailable(
+    exc: httpx.TransportError, call: _Call, base_url: str, attempts: int
+) -> ServiceUnavailable:
     """The client error for a request that got no answer."""
     code = "timeout" if isinstance(exc, httpx.TimeoutException) else "unreachable"
     tried = f" after {attempts} attempts" if attempts > 1 else ""
@@ -452,8 +514,10 @@ def parse_model(response: httpx.Response, model: type[_ModelT], call: _Call) -> 
         raise BoundsvcClientError(
             f"the service's answer does not match {model.__name__}: {exc.error_count()} "
             f"error(s), first: {exc.errors()[0]['msg']}",
-            status=response.status_code, code="invalid_response",
-            request_id=response.headers.get("x-request-id"), method=call.method,
+            status=response.status_code,
+            code="invalid_response",
+            request_id=response.headers.get("x-request-id"),
+            method=call.method,
             url=str(response.request.url) if response.request is not None else call.path,
         ) from exc
 
@@ -464,9 +528,13 @@ def parse_json_object(response: httpx.Response, call: _Call) -> dict[str, Any]:
     except ValueError:
         body = None
     if not isinstance(body, dict):
-        raise BoundsvcClientError("the service's answer is not a JSON object",
-                                  status=response.status_code, code="invalid_response",
-                                  method=call.method, url=call.path)
+        raise BoundsvcClientError(
+            "the service's answer is not a JSON object",
+            status=response.status_code,
+            code="invalid_response",
+            method=call.method,
+            url=call.path,
+        )
     return body
 
 
@@ -512,8 +580,10 @@ class ComponentPoints:
         points = np.asarray(component.points, dtype=np.float64).reshape(-1, len(axes))
         weights = np.asarray(component.weights, dtype=np.float64)
         if points.shape[0] != weights.shape[0] or points.shape[0] != component.size:
-            raise ValueError(f"plan component {component.name!r}: {points.shape[0]} points, "
-                             f"{weights.shape[0]} weights, size {component.size}")
+            raise ValueError(
+                f"plan component {component.name!r}: {points.shape[0]} points, "
+                f"{weights.shape[0]} weights, size {component.size}"
+            )
         points.setflags(write=False)
         weights.setflags(write=False)
         return cls(component.name, axes, points, weights)
@@ -538,8 +608,9 @@ class Plan:
         try:
             return self.components[name]
         except KeyError:
-            raise KeyError(f"the plan has no component {name!r} (it has "
-                           f"{', '.join(self.components)})") from None
+            raise KeyError(
+                f"the plan has no component {name!r} (it has {', '.join(self.components)})"
+            ) from None
 
     @property
     def names(self) -> tuple[str, ...]:
@@ -555,10 +626,11 @@ class Plan:
     def from_response(cls, response: PlanResponse) -> Plan:
         """Arrays from the wire model of ``POST /v1/plans``."""
         return cls(
-            plan_id=response.plan_id, problem_id=response.problem_id, rule=response.rule,
+            plan_id=response.plan_id,
+            problem_id=response.problem_id,
+            rule=response.rule,
             components={c.name: ComponentPoints.from_wire(c) for c in response.components},
-            axis_nodes={k: np.asarray(v, dtype=np.float64) for k, v in
-                        response.axis_nodes.items()},
+            axis_nodes={k: np.asarray(v, dtype=np.float64) for k, v in response.axis_nodes.items()},
             time_nodes=np.asarray(response.time_nodes, dtype=np.float64),
             warnings=tuple(response.warnings),
         )
@@ -566,12 +638,22 @@ class Plan:
     def to_response(self) -> PlanResponse:
         """The wire model again (what ``.json`` files hold)."""
         return PlanResponse(
-            plan_id=self.plan_id, rule=self.rule, problem_id=self.problem_id,
-            components=[PlanComponent(name=c.name, axes=list(c.axes), points=c.points.tolist(),
-                                      weights=c.weights.tolist(), size=c.size)
-                        for c in self.components.values()],
+            plan_id=self.plan_id,
+            rule=self.rule,
+            problem_id=self.problem_id,
+            components=[
+                PlanComponent(
+                    name=c.name,
+                    axes=list(c.axes),
+                    points=c.points.tolist(),
+                    weights=c.weights.tolist(),
+                    size=c.size,
+                )
+                for c in self.components.values()
+            ],
             axis_nodes={k: v.tolist() for k, v in self.axis_nodes.items()},
-            time_nodes=self.time_nodes.tolist(), warnings=list(self.warnings),
+            time_nodes=self.time_nodes.tolist(),
+            warnings=list(self.warnings),
         )
 
     def save(self, path: str | os.PathLike[str]) -> None:
@@ -584,12 +666,18 @@ class Plan:
             return
         if suffix != ".npz":
             raise ValueError(f"{target}: a plan file must end in .npz or .json")
-        meta = {"format": "boundsvc-plan/1", "plan_id": self.plan_id,
-                "problem_id": self.problem_id, "rule": self.rule,
-                "components": {n: list(c.axes) for n, c in self.components.items()},
-                "warnings": list(self.warnings)}
-        arrays: dict[str, npt.NDArray[Any]] = {"meta": np.array(json.dumps(meta)),
-                                               "time_nodes": self.time_nodes}
+        meta = {
+            "format": "boundsvc-plan/1",
+            "plan_id": self.plan_id,
+            "problem_id": self.problem_id,
+            "rule": self.rule,
+            "components": {n: list(c.axes) for n, c in self.components.items()},
+            "warnings": list(self.warnings),
+        }
+        arrays: dict[str, npt.NDArray[Any]] = {
+            "meta": np.array(json.dumps(meta)),
+            "time_nodes": self.time_nodes,
+        }
         for name, comp in self.components.items():
             arrays[f"{name}.points"] = comp.points
             arrays[f"{name}.weights"] = comp.weights
@@ -615,12 +703,21 @@ class Plan:
                 points = np.asarray(data[f"{name}.points"], dtype=np.float64)
                 weights = np.asarray(data[f"{name}.weights"], dtype=np.float64)
                 comps[name] = ComponentPoints(name, tuple(axes), points, weights)
-            axis_nodes = {key[len("axis."):]: np.asarray(data[key], dtype=np.float64)
-                          for key in data.files if key.startswith("axis.")}
+            axis_nodes = {
+                key[len("axis.") :]: np.asarray(data[key], dtype=np.float64)
+                for key in data.files
+                if key.startswith("axis.")
+            }
             time_nodes = np.asarray(data["time_nodes"], dtype=np.float64)
-        return cls(plan_id=meta["plan_id"], problem_id=meta["problem_id"], rule=meta["rule"],
-                   components=comps, axis_nodes=axis_nodes, time_nodes=time_nodes,
-                   warnings=tuple(meta.get("warnings", ())))
+        return cls(
+            plan_id=meta["plan_id"],
+            problem_id=meta["problem_id"],
+            rule=meta["rule"],
+            components=comps,
+            axis_nodes=axis_nodes,
+            time_nodes=time_nodes,
+            warnings=tuple(meta.get("warnings", ())),
+        )
 
 
 @dataclass(frozen=True)
@@ -746,11 +843,19 @@ class BoundsvcClient:
                 content = call.chunks()
             try:
                 response = self._http.request(
-                    call.method, self.base_url + call.path, params=call.params or None,
-                    content=content, headers=headers, timeout=self._timeout)
+                    call.method,
+                    self.base_url + call.path,
+                    params=call.params or None,
+                    content=content,
+                    headers=headers,
+                    timeout=self._timeout,
+                )
             except httpx.TransportError as exc:
-                wait = self.retry.delay(attempt) if (
-                    call.retry_allowed and _is_connection_error(exc)) else None
+                wait = (
+                    self.retry.delay(attempt)
+                    if (call.retry_allowed and _is_connection_error(exc))
+                    else None
+                )
                 if wait is None:
                     raise unavailable(exc, call, self.base_url, attempt + 1) from exc
                 self._sleep(wait)
@@ -778,9 +883,13 @@ class BoundsvcClient:
         call = _Call("GET", "/v1/families")
         return parse_model(self._send(call), FamilyList, call).families
 
-    def problem(self, problem: ProblemLike, *,
-                regularity: Mapping[str, float | str] | None = None,
-                idempotent: bool = True) -> ProblemResponse:
+    def problem(
+        self,
+        problem: ProblemLike,
+        *,
+        regularity: Mapping[str, float | str] | None = None,
+        idempotent: bool = True,
+    ) -> ProblemResponse:
         """Classify ``problem`` and derive its constants (``POST /v1/problems``).
 
         ``regularity`` optionally evaluates the constants. The call is idempotent by nature
@@ -795,9 +904,16 @@ class BoundsvcClient:
         call = _Call("GET", f"/v1/problems/{_path_id(problem_id, 'problem id')}")
         return parse_model(self._send(call), ProblemResponse, call)
 
-    def plan(self, problem: ProblemRef, *, points: Mapping[str, int] | None = None,
-             panels: Mapping[str, int] | None = None, rule: str = "gauss-legendre",
-             idempotent: bool = True, **options: Any) -> Plan:
+    def plan(
+        self,
+        problem: ProblemRef,
+        *,
+        points: Mapping[str, int] | None = None,
+        panels: Mapping[str, int] | None = None,
+        rule: str = "gauss-legendre",
+        idempotent: bool = True,
+        **options: Any,
+    ) -> Plan:
         """Quadrature nodes and weights per component (``POST /v1/plans``).
 
         Parameters
@@ -863,8 +979,18 @@ class BoundsvcClient:
             Keep the residuals on the service so that :meth:`verify` can recompute the
             certificate later (``None``: the service's default).
         """
-        call = call_certify(problem, plan, regularity, residuals, model, encoding, idempotent,
-                            idempotency_key, progress, archive)
+        call = call_certify(
+            problem,
+            plan,
+            regularity,
+            residuals,
+            model,
+            encoding,
+            idempotent,
+            idempotency_key,
+            progress,
+            archive,
+        )
         return parse_model(self._send(call), Certificate, call)
 
     def certificate(self, certificate_id: str) -> Certificate:
@@ -872,17 +998,31 @@ class BoundsvcClient:
         call = _Call("GET", f"/v1/certificates/{_path_id(certificate_id, 'certificate id')}")
         return parse_model(self._send(call), Certificate, call)
 
-    def certificates_page(self, *, model: str | None = None, version: str | None = None,
-                          family: str | None = None, status: str | None = None,
-                          limit: int = 50, cursor: str | None = None) -> CertificatePage:
+    def certificates_page(
+        self,
+        *,
+        model: str | None = None,
+        version: str | None = None,
+        family: str | None = None,
+        status: str | None = None,
+        limit: int = 50,
+        cursor: str | None = None,
+    ) -> CertificatePage:
         """One page of the certificate list, newest first."""
         call = call_list(model, version, family, status, limit, cursor)
         return parse_model(self._send(call), CertificatePage, call)
 
-    def certificates(self, *, model: str | None = None, version: str | None = None,
-                     family: str | None = None, status: str | None = None,
-                     limit: int | None = None, cursor: str | None = None,
-                     page_size: int = 100) -> Iterator[CertificateSummary]:
+    def certificates(
+        self,
+        *,
+        model: str | None = None,
+        version: str | None = None,
+        family: str | None = None,
+        status: str | None = None,
+        limit: int | None = None,
+        cursor: str | None = None,
+        page_size: int = 100,
+    ) -> Iterator[CertificateSummary]:
         """Certificates newest first, fetching pages as the iteration goes.
 
         ``limit`` caps the number of items yielded (``None``: all); ``cursor`` resumes a
@@ -891,8 +1031,14 @@ class BoundsvcClient:
         remaining = limit
         while remaining is None or remaining > 0:
             size = page_size if remaining is None else min(page_size, remaining)
-            page = self.certificates_page(model=model, version=version, family=family,
-                                          status=status, limit=size, cursor=cursor)
+            page = self.certificates_page(
+                model=model,
+                version=version,
+                family=family,
+                status=status,
+                limit=size,
+                cursor=cursor,
+            )
             yield from page.items
             if remaining is not None:
                 remaining -= len(page.items)
@@ -933,4 +1079,3 @@ class BoundsvcClient:
         cid = _path_id(certificate_id, "certificate id")
         call = _Call("GET", f"/v1/certificates/{cid}/report", accept="text/html, */*")
         return report_from(self._send(call), cid)
-

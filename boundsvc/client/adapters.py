@@ -75,32 +75,41 @@ class MLPFields:
         Rows per batch of Taylor propagation (see :meth:`MLP.fields`).
     """
 
-    def __init__(self, model: MLP, axes: Sequence[str] = ("t", "x"),
-                 outputs: Sequence[str] = ("u",), batch_size: int | None = None) -> None:
+    def __init__(
+        self,
+        model: MLP,
+        axes: Sequence[str] = ("t", "x"),
+        outputs: Sequence[str] = ("u",),
+        batch_size: int | None = None,
+    ) -> None:
         if len(axes) != model.input_dim:
-            raise ValueError(f"axes {list(axes)} name {len(axes)} inputs; the model has "
-                             f"{model.input_dim}")
+            raise ValueError(
+                f"axes {list(axes)} name {len(axes)} inputs; the model has {model.input_dim}"
+            )
         self.model = model
         self.axes = tuple(axes)
         self.outputs = tuple(outputs)
         self.batch_size = batch_size
 
     def __call__(self, points: FloatArray, names: Sequence[str]) -> dict[str, FloatArray]:
-        return residual_fields(self.model, points, self.axes, names, outputs=self.outputs,
-                               batch_size=self.batch_size)
+        return residual_fields(
+            self.model, points, self.axes, names, outputs=self.outputs, batch_size=self.batch_size
+        )
 
     def __repr__(self) -> str:
         return f"MLPFields({self.model!r}, axes={self.axes}, outputs={self.outputs})"
 
 
-def as_field_evaluator(model: MLP | FieldEvaluator, axes: Sequence[str],
-                       outputs: Sequence[str] = ("u",)) -> FieldEvaluator:
+def as_field_evaluator(
+    model: MLP | FieldEvaluator, axes: Sequence[str], outputs: Sequence[str] = ("u",)
+) -> FieldEvaluator:
     """Wrap an :class:`MLP` in :class:`MLPFields`; pass any other field evaluator through."""
     if isinstance(model, MLP):
         return MLPFields(model, axes, outputs)
     if not callable(model):
-        raise TypeError(f"expected an MLP or a callable fields(points, names), got "
-                        f"{type(model).__name__}")
+        raise TypeError(
+            f"expected an MLP or a callable fields(points, names), got {type(model).__name__}"
+        )
     return model
 
 
@@ -124,8 +133,9 @@ def _column(values: Any, name: str, n: int) -> FloatArray:
     return arr
 
 
-def evaluate_fields(fields: FieldEvaluator, points: npt.ArrayLike, axes: Sequence[str],
-                    names: Sequence[str]) -> dict[str, FloatArray]:
+def evaluate_fields(
+    fields: FieldEvaluator, points: npt.ArrayLike, axes: Sequence[str], names: Sequence[str]
+) -> dict[str, FloatArray]:
     """The requested ``names`` at ``points``, plus each coordinate under its axis name."""
     pts = _as_points(points, len(axes))
     n = pts.shape[0]
@@ -139,9 +149,14 @@ def evaluate_fields(fields: FieldEvaluator, points: npt.ArrayLike, axes: Sequenc
     return out
 
 
-def residuals_from_fields(operator: Operator, fields: MLP | FieldEvaluator,
-                          points: npt.ArrayLike, *, axes: Sequence[str],
-                          names: Sequence[str]) -> FloatArray:
+def residuals_from_fields(
+    operator: Operator,
+    fields: MLP | FieldEvaluator,
+    points: npt.ArrayLike,
+    *,
+    axes: Sequence[str],
+    names: Sequence[str],
+) -> FloatArray:
     """``operator(fields)`` at ``points``: the PDE residual ``lhs - rhs`` of a model.
 
     Parameters
@@ -201,8 +216,14 @@ class PlanEvaluator:
     ... )  # doctest: +SKIP
     """
 
-    def __init__(self, model: MLP | FieldEvaluator, *, t0: float,
-                 axes: Sequence[str] = ("t", "x"), outputs: Sequence[str] = ("u",)) -> None:
+    def __init__(
+        self,
+        model: MLP | FieldEvaluator,
+        *,
+        t0: float,
+        axes: Sequence[str] = ("t", "x"),
+        outputs: Sequence[str] = ("u",),
+    ) -> None:
         if not axes or axes[0] != "t":
             raise ValueError(f"axes must start with 't' (time first), got {list(axes)}")
         self.axes = tuple(axes)
@@ -212,14 +233,22 @@ class PlanEvaluator:
         self.fields = as_field_evaluator(model, self.axes, self.outputs)
 
     @classmethod
-    def for_problem(cls, model: MLP | FieldEvaluator, problem: ProblemSpec | Mapping[str, Any],
-                    outputs: Sequence[str] | None = None) -> PlanEvaluator:
+    def for_problem(
+        cls,
+        model: MLP | FieldEvaluator,
+        problem: ProblemSpec | Mapping[str, Any],
+        outputs: Sequence[str] | None = None,
+    ) -> PlanEvaluator:
         """An evaluator whose ``t0``, axes and unknowns are those of ``problem``."""
-        spec = problem if isinstance(problem, ProblemSpec) else ProblemSpec.model_validate(
-            dict(problem))
+        spec = (
+            problem
+            if isinstance(problem, ProblemSpec)
+            else ProblemSpec.model_validate(dict(problem))
+        )
         if spec.time is None:
-            raise ValueError("the problem is steady (no 'time'); PlanEvaluator needs a "
-                             "time-dependent problem")
+            raise ValueError(
+                "the problem is steady (no 'time'); PlanEvaluator needs a time-dependent problem"
+            )
         names = outputs if outputs is not None else tuple(spec.unknowns or ("u",))
         return cls(model, t0=spec.time[0], axes=("t", *spec.space), outputs=names)
 
@@ -235,8 +264,10 @@ class PlanEvaluator:
             elif axis == "t":
                 columns.append(np.full(component.size, self.t0))
             else:
-                raise ValueError(f"component {component.name!r} has axes "
-                                 f"{list(component.axes)}; the model needs {axis!r}")
+                raise ValueError(
+                    f"component {component.name!r} has axes "
+                    f"{list(component.axes)}; the model needs {axis!r}"
+                )
         return np.stack(columns, axis=1) if columns else np.zeros((component.size, 0))
 
     def evaluate(self, component: ComponentPoints, names: Sequence[str]) -> dict[str, FloatArray]:
@@ -248,13 +279,15 @@ class PlanEvaluator:
         cols = [f[name] for name in self.outputs]
         return cols[0] if len(cols) == 1 else np.stack(cols, axis=1)
 
-    def _data(self, function: DataFunction, component: ComponentPoints,
-              axes: Sequence[str], what: str) -> FloatArray:
+    def _data(
+        self, function: DataFunction, component: ComponentPoints, axes: Sequence[str], what: str
+    ) -> FloatArray:
         pts = self.model_points(component)
         args = [pts[:, self.axes.index(a)] for a in axes]
         raw = np.asarray(function(*args), dtype=np.float64)
-        expected = (component.size,) if len(self.outputs) == 1 else (
-            component.size, len(self.outputs))
+        expected = (
+            (component.size,) if len(self.outputs) == 1 else (component.size, len(self.outputs))
+        )
         if raw.ndim == 0:
             raw = np.full(expected, float(raw))
         if raw.shape != expected:
@@ -268,21 +301,22 @@ class PlanEvaluator:
         values = self.evaluate(comp, names)
         residual = np.asarray(operator(values), dtype=np.float64)
         if residual.shape[:1] != (comp.size,):
-            raise ValueError(f"the operator returned shape {residual.shape} for {comp.size} "
-                             "interior points")
+            raise ValueError(
+                f"the operator returned shape {residual.shape} for {comp.size} interior points"
+            )
         return residual
 
     def initial(self, plan: Plan, initial_value: DataFunction) -> FloatArray:
         """``u_model(t0, x) - u0(x)``; ``initial_value`` takes the spatial coordinates."""
         comp = plan["initial"]
-        return self._values(comp) - self._data(initial_value, comp, self.space_axes,
-                                               "initial_value")
+        return self._values(comp) - self._data(
+            initial_value, comp, self.space_axes, "initial_value"
+        )
 
     def boundary(self, plan: Plan, boundary_value: DataFunction) -> FloatArray:
         """``u_model - g`` at the boundary points; ``boundary_value`` takes ``(t, x, ...)``."""
         comp = plan["boundary"]
-        return self._values(comp) - self._data(boundary_value, comp, self.axes,
-                                               "boundary_value")
+        return self._values(comp) - self._data(boundary_value, comp, self.axes, "boundary_value")
 
     def residuals(
         self,
@@ -321,12 +355,13 @@ class PlanEvaluator:
                 out[name] = self.initial(plan, initial_value)
             elif name == "boundary":
                 if boundary_value is None:
-                    raise ValueError("the plan has a 'boundary' component: pass "
-                                     "boundary_value")
+                    raise ValueError("the plan has a 'boundary' component: pass boundary_value")
                 out[name] = self.boundary(plan, boundary_value)
             else:
-                raise ValueError(f"the plan has a component {name!r} this evaluator does not "
-                                 f"form; pass others={{{name!r}: function_of_points}}")
+                raise ValueError(
+                    f"the plan has a component {name!r} this evaluator does not "
+                    f"form; pass others={{{name!r}: function_of_points}}"
+                )
         if extra:
             raise ValueError(f"others names components the plan does not have: {sorted(extra)}")
         return out

@@ -40,8 +40,10 @@ __all__ = ["TorchFields", "require_torch", "torch_plan_evaluator"]
 FloatArray: TypeAlias = npt.NDArray[np.float64]
 MultiIndex: TypeAlias = tuple[int, ...]
 
-INSTALL_HINT = ("boundsvc.client.torch needs PyTorch, which is not installed: "
-                "pip install 'boundsvc[torch]' (pins torch==2.13.0)")
+INSTALL_HINT = (
+    "boundsvc.client.torch needs PyTorch, which is not installed: "
+    "pip install 'boundsvc[torch]' (pins torch==2.13.0)"
+)
 
 
 def require_torch() -> Any:
@@ -55,7 +57,7 @@ def require_torch() -> Any:
 def _predecessor(alpha: MultiIndex) -> tuple[MultiIndex, int]:
     """``(alpha - e_j, j)`` for the last axis ``j`` with ``alpha_j > 0``."""
     j = max(i for i, a in enumerate(alpha) if a > 0)
-    return (*alpha[:j], alpha[j] - 1, *alpha[j + 1:]), j
+    return (*alpha[:j], alpha[j] - 1, *alpha[j + 1 :]), j
 
 
 def _derivative_plan(wanted: Sequence[MultiIndex]) -> tuple[list[MultiIndex], set[MultiIndex]]:
@@ -68,8 +70,9 @@ def _derivative_plan(wanted: Sequence[MultiIndex]) -> tuple[list[MultiIndex], se
             needed.add(a)
             a, _ = _predecessor(a)
     parents = {_predecessor(a)[0] for a in needed}
-    graphed = {p for p in parents
-               if any((*p[:j], p[j] + 1, *p[j + 1:]) in parents for j in range(len(p)))}
+    graphed = {
+        p for p in parents if any((*p[:j], p[j] + 1, *p[j + 1 :]) in parents for j in range(len(p)))
+    }
     return sorted(parents, key=sum), graphed
 
 
@@ -114,8 +117,11 @@ class TorchFields:
         self.batch_size = int(batch_size)
         self.progress = progress
         first = next(iter(module.parameters()), None)
-        self.device = self._torch.device(device) if device is not None else (
-            first.device if first is not None else self._torch.device("cpu"))
+        self.device = (
+            self._torch.device(device)
+            if device is not None
+            else (first.device if first is not None else self._torch.device("cpu"))
+        )
         if dtype is not None:
             self.dtype = dtype
         elif first is not None and first.is_floating_point():
@@ -139,8 +145,9 @@ class TorchFields:
                 self.progress(stop, n)
         return out
 
-    def _batch(self, x: FloatArray,
-               parsed: dict[str, tuple[int, MultiIndex]]) -> dict[str, FloatArray]:
+    def _batch(
+        self, x: FloatArray, parsed: dict[str, tuple[int, MultiIndex]]
+    ) -> dict[str, FloatArray]:
         torch_ = self._torch
         # a copy: plan arrays are read-only, and torch must not alias them
         xt = torch_.tensor(x, dtype=self.dtype, device=self.device, requires_grad=True)
@@ -149,21 +156,29 @@ class TorchFields:
             if y.ndim == 1:
                 y = y[:, None]
             if y.ndim != 2 or y.shape[0] != x.shape[0] or y.shape[1] != len(self.outputs):
-                raise ValueError(f"the module returned shape {tuple(y.shape)} for "
-                                 f"{x.shape[0]} points; expected ({x.shape[0]}, "
-                                 f"{len(self.outputs)}) for outputs {list(self.outputs)}")
+                raise ValueError(
+                    f"the module returned shape {tuple(y.shape)} for "
+                    f"{x.shape[0]} points; expected ({x.shape[0]}, "
+                    f"{len(self.outputs)}) for outputs {list(self.outputs)}"
+                )
             result: dict[str, FloatArray] = {}
             for col in sorted({c for c, _ in parsed.values()}):
                 wanted = [alpha for c, alpha in parsed.values() if c == col]
                 derivs = self._derivatives(xt, y[:, col], wanted)
                 for name, (c, alpha) in parsed.items():
                     if c == col:
-                        result[name] = derivs[alpha].detach().to(
-                            device="cpu", dtype=torch_.float64).numpy().copy()
+                        result[name] = (
+                            derivs[alpha]
+                            .detach()
+                            .to(device="cpu", dtype=torch_.float64)
+                            .numpy()
+                            .copy()
+                        )
         return result
 
-    def _derivatives(self, xt: torch.Tensor, u: torch.Tensor,
-                     wanted: Sequence[MultiIndex]) -> dict[MultiIndex, torch.Tensor]:
+    def _derivatives(
+        self, xt: torch.Tensor, u: torch.Tensor, wanted: Sequence[MultiIndex]
+    ) -> dict[MultiIndex, torch.Tensor]:
         torch_ = self._torch
         d = len(self.axes)
         derivs: dict[MultiIndex, torch.Tensor] = {(0,) * d: u}
@@ -173,26 +188,37 @@ class TorchFields:
             if value.requires_grad:
                 # retain_graph: sibling derivatives and other outputs share the forward graph;
                 # it is freed with the batch.
-                (grad,) = torch_.autograd.grad(value.sum(), xt, create_graph=beta in graphed,
-                                               retain_graph=True, allow_unused=True)
+                (grad,) = torch_.autograd.grad(
+                    value.sum(),
+                    xt,
+                    create_graph=beta in graphed,
+                    retain_graph=True,
+                    allow_unused=True,
+                )
             else:
                 grad = None
             if grad is None:  # the derivative vanishes identically (e.g. u_xx of a linear u)
                 grad = torch_.zeros_like(xt)
             for j in range(d):
-                child = (*beta[:j], beta[j] + 1, *beta[j + 1:])
+                child = (*beta[:j], beta[j] + 1, *beta[j + 1 :])
                 derivs.setdefault(child, grad[:, j])
         return derivs
 
     def __repr__(self) -> str:
-        return (f"TorchFields({type(self.module).__name__}, axes={self.axes}, "
-                f"device={self.device}, dtype={self.dtype})")
+        return (
+            f"TorchFields({type(self.module).__name__}, axes={self.axes}, "
+            f"device={self.device}, dtype={self.dtype})"
+        )
 
 
-def torch_plan_evaluator(module: torch.nn.Module, problem: Any, *, batch_size: int = 8192,
-                         progress: Callable[[int, int], None] | None = None) -> PlanEvaluator:
+def torch_plan_evaluator(
+    module: torch.nn.Module,
+    problem: Any,
+    *,
+    batch_size: int = 8192,
+    progress: Callable[[int, int], None] | None = None,
+) -> PlanEvaluator:
     """A :class:`PlanEvaluator` of ``module`` for ``problem`` (axes ``("t", *space)``)."""
     base = PlanEvaluator.for_problem(lambda p, n: {}, problem)
-    fields = TorchFields(module, base.axes, base.outputs, batch_size=batch_size,
-                         progress=progress)
+    fields = TorchFields(module, base.axes, base.outputs, batch_size=batch_size, progress=progress)
     return PlanEvaluator(fields, t0=base.t0, axes=base.axes, outputs=base.outputs)

@@ -61,10 +61,15 @@ class BoundRecord:
 
     @classmethod
     def from_certificate(cls, epoch: int, cert: Certificate, seconds: float) -> BoundRecord:
-        return cls(epoch=epoch, status=cert.status, l2_space_time=cert.bound.l2_space_time,
-                   l2_final_time=cert.bound.l2_final_time,
-                   terms={t.name: t.value for t in cert.terms}, certificate_id=cert.id,
-                   seconds=seconds)
+        return cls(
+            epoch=epoch,
+            status=cert.status,
+            l2_space_time=cert.bound.l2_space_time,
+            l2_final_time=cert.bound.l2_final_time,
+            terms={t.name: t.value for t in cert.terms},
+            certificate_id=cert.id,
+            seconds=seconds,
+        )
 
     def as_dict(self) -> dict[str, Any]:
         return asdict(self)
@@ -148,21 +153,35 @@ class CertifyEvery:
             residuals = self.residual_fn(plan)
             regularity = self.regularity() if callable(self.regularity) else self.regularity
             cert = self.client.certify(
-                self.problem_id or self.problem, plan, regularity, residuals,
-                model={"name": self.model_name, "version": self.model_version,
-                       "epoch": int(epoch)})
+                self.problem_id or self.problem,
+                plan,
+                regularity,
+                residuals,
+                model={"name": self.model_name, "version": self.model_version, "epoch": int(epoch)},
+            )
         except BoundsvcClientError as exc:
             if self.raise_errors:
                 raise
-            record = BoundRecord(epoch=int(epoch), status=MISSED, error=str(exc),
-                                 seconds=time.perf_counter() - start)
-            self.log.warning("epoch %d: no certificate (%s %s): %s", epoch, exc.status or "-",
-                             exc.code, exc.detail)
+            record = BoundRecord(
+                epoch=int(epoch), status=MISSED, error=str(exc), seconds=time.perf_counter() - start
+            )
+            self.log.warning(
+                "epoch %d: no certificate (%s %s): %s",
+                epoch,
+                exc.status or "-",
+                exc.code,
+                exc.detail,
+            )
         else:
             record = BoundRecord.from_certificate(int(epoch), cert, time.perf_counter() - start)
-            self.log.info("epoch %d: L2 bound %s (final time %s), %s, %s", epoch,
-                          _fmt(record.l2_space_time), _fmt(record.l2_final_time),
-                          record.status, record.certificate_id)
+            self.log.info(
+                "epoch %d: L2 bound %s (final time %s), %s, %s",
+                epoch,
+                _fmt(record.l2_space_time),
+                _fmt(record.l2_final_time),
+                record.status,
+                record.certificate_id,
+            )
         self.history.append(record)
         if self.on_record is not None:
             self.on_record(record)
@@ -172,8 +191,9 @@ class CertifyEvery:
         if self.problem_id is None:
             self.problem_id = self.client.problem(self.problem).problem_id
         if self.plan is None:
-            self.plan = self.client.plan(self.problem_id, points=self.plan_points,
-                                         panels=self.plan_panels or None)
+            self.plan = self.client.plan(
+                self.problem_id, points=self.plan_points, panels=self.plan_panels or None
+            )
         return self.plan
 
     # -- the history --------------------------------------------------------------
@@ -203,8 +223,10 @@ class CertifyEvery:
         head = f"{'epoch':>7}  {'status':<19} {'L2 space-time':>14} {'L2 final':>12}"
         lines = [f"{head}  certificate"]
         for r in self.history:
-            lines.append(f"{r.epoch:>7}  {r.status:<19} {_fmt(r.l2_space_time):>14} "
-                         f"{_fmt(r.l2_final_time):>12}  {r.certificate_id or r.error or ''}")
+            lines.append(
+                f"{r.epoch:>7}  {r.status:<19} {_fmt(r.l2_space_time):>14} "
+                f"{_fmt(r.l2_final_time):>12}  {r.certificate_id or r.error or ''}"
+            )
         return "\n".join(lines)
 
 

@@ -178,9 +178,10 @@ def test_sobol_plan_and_lifting_component_through_the_client(client: BoundsvcCli
     points are a base-2 net per replicate) and a Gauss-Legendre plan with the optional
     ``boundary_t`` component of the boundary lifting."""
     sobol = client.plan(HEAT, rule="sobol", n=64, replicates=4, seed=7, points={"t": 4})
-    assert sobol.plan_id == client.plan(
-        HEAT, rule="sobol", n=64, replicates=4, seed=7, points={"t": 4}
-    ).plan_id  # reproducible from the request
+    assert (
+        sobol.plan_id
+        == client.plan(HEAT, rule="sobol", n=64, replicates=4, seed=7, points={"t": 4}).plan_id
+    )  # reproducible from the request
     interior = sobol.components["interior"]
     assert interior.points.shape[0] % 4 == 0
     assert math.isclose(float(interior.weights.sum()), T_END * 1.0, rel_tol=1e-12)
