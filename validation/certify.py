@@ -167,6 +167,21 @@ def residuals(problem: Problem, model: MLP, plan: Mapping[str, Any]) -> dict[str
             target = problem.initial(pts[:, 1])[:, None]
         r0 = _values(problem, model, pts) - target
         out["initial"] = r0[:, 0] if r0.shape[1] == 1 else r0
+    for name in ("initial_t", "initial_x"):  # wave family: at the points of `initial`
+        comp = _component(plan, name)
+        if comp is None:
+            continue
+        pts = _as_model_points(problem, comp)
+        deriv = "u_" + name[-1]
+        d = residual_fields(model, pts, problem.axes, (deriv,), outputs=problem.outputs)[deriv]
+        # initial_t: u_model_t - v0 with v0 = u_t(t0, x); initial_x: d_x (u_model - u0); both
+        # data derivatives of the closed form by the complex step (exact to rounding)
+        h = 1e-20
+        if name == "initial_t":
+            target = problem.boundary_rate(pts[:, 0], pts[:, 1])
+        else:
+            target = np.imag(problem.exact(pts[:, 0], pts[:, 1] + 1j * h)) / h
+        out[name] = np.asarray(d).reshape(-1) - np.asarray(target, dtype=np.float64)
     bnd = _component(plan, "boundary")
     if bnd is not None:
         pts = _as_model_points(problem, bnd)

@@ -101,6 +101,9 @@ def torch_fields(net: Net, pts: torch.Tensor) -> dict[str, torch.Tensor]:
             if name + "_xx" in p.fields:
                 (g2,) = torch.autograd.grad(g[:, 1].sum(), pts, create_graph=True)
                 fields[name + "_xx"] = g2[:, 1]
+            if name + "_tt" in p.fields:  # second order in time (wave family)
+                (g2,) = torch.autograd.grad(g[:, 0].sum(), pts, create_graph=True)
+                fields[name + "_tt"] = g2[:, 0]
     return fields
 
 
@@ -121,6 +124,8 @@ def sample(problem: Problem, rng: np.random.Generator) -> dict[str, torch.Tensor
     x_ic = rng.uniform(xl, xr, cfg.n_ic)
     out["ic"] = torch.tensor(np.column_stack([np.full_like(x_ic, t0), x_ic]))
     out["ic_val"] = torch.tensor(problem.initial(x_ic))[:, None]
+    if "u_tt" in problem.fields:  # wave family: the initial velocity u_t(t0, x) as well
+        out["ic_t_val"] = torch.tensor(problem.boundary_rate(np.full_like(x_ic, t0), x_ic))
     if problem.lift is None:
         t_bc = rng.uniform(t0, t1, cfg.n_bc)
         bc = np.concatenate(
@@ -140,6 +145,9 @@ def losses(net: Net, pts: dict[str, torch.Tensor]) -> dict[str, torch.Tensor]:
     ic = (net(pts["ic"]) - pts["ic_val"]).pow(2).mean()
     out = {"pde": pde, "ic": ic}
     data = ic
+    if "ic_t_val" in pts:
+        out["ic_t"] = (torch_fields(net, pts["ic"])["u_t"] - pts["ic_t_val"]).pow(2).mean()
+        data = data + out["ic_t"]
     if "bc" in pts:
         out["bc"] = (net(pts["bc"]) - pts["bc_val"]).pow(2).mean()
         data = data + out["bc"]

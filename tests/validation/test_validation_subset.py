@@ -21,6 +21,7 @@ from tests.inprocess import InProcessClient
 from validation.certify import certify_network
 from validation.models import load_model, weights_path
 from validation.problems import heat_dirichlet
+from validation.problems.wave import travelling_pulse
 from validation.service import RawApi
 
 
@@ -58,3 +59,18 @@ def test_hard_constrained_boundary_residual_is_exactly_zero(api: RawApi) -> None
     outcome = certify_network(api, problem, model)
     assert outcome.failures == []
     assert not any("boundary" in t["name"] and t["value"] for t in outcome.certificate["terms"])
+
+
+def test_cached_wave_network_bound_above_true_error(api: RawApi) -> None:
+    # d'Alembert's travelling wave u = F(x - c t) (Strauss, PDE: An Introduction, 2nd ed. 2008,
+    # sec. 2.1, eq. (8), from memory), energy estimate of docs/theory/wave.md
+    problem = travelling_pulse()
+    assert weights_path(problem).exists(), "cached weights are part of the repository"
+    outcome = certify_network(api, problem, load_model(problem))
+    assert outcome.failures == []
+    assert outcome.status == "valid"
+    assert outcome.certificate["family"] == "wave"
+    assert outcome.true_space_time is not None and outcome.true_final_time is not None
+    assert outcome.bound("l2_space_time") >= outcome.true_space_time  # type: ignore[operator]
+    assert outcome.bound("l2_final_time") >= outcome.true_final_time  # type: ignore[operator]
+    assert 0.0 < outcome.true_space_time < 1e-2

@@ -7,6 +7,7 @@ from validation.problems.burgers import burgers_compressive, burgers_expansive, 
 from validation.problems.heat import advection_diffusion_mode, heat_dirichlet
 from validation.problems.ode import oscillator, riccati_tan
 from validation.problems.semilinear import allen_cahn_front, fisher_kpp
+from validation.problems.wave import string_mode, travelling_pulse
 
 #: Sweep of the network width (Adam only, fixed length) on the heat problem.
 WIDTHS = (8, 16, 32)
@@ -36,6 +37,8 @@ def suite() -> list[Problem]:
         fisher_kpp(),
         riccati_tan(1.2),
         oscillator(),
+        string_mode(),
+        travelling_pulse(),
     ]
 
 
