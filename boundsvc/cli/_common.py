@@ -1,4 +1,4 @@
-"""What the commands that talk to a service share: options, the client, exit codes, output.
+"""What the commands that call a service share: options, the client, exit codes, output.
 
 Exit codes (every remote command, and ``boundsvc gate``):
 

@@ -1,4 +1,4 @@
-"""Commands that talk to a running service: ``problem``, ``plan``, ``certify``, ``show``,
+"""Commands that call a running service: ``problem``, ``plan``, ``certify``, ``show``,
 ``list`` and ``report``. Exit codes are those of :mod:`boundsvc.cli._common`."""
 
 from __future__ import annotations
