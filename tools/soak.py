@@ -25,6 +25,7 @@ import json
 import os
 import signal
 import socket
+import statistics
 import subprocess
 import sys
 import tempfile
@@ -359,6 +360,17 @@ class MemoryTrace:
     @property
     def peak_growth(self) -> float:
         return max(self.samples_mib) - self.samples_mib[0]
+
+    @property
+    def late_growth(self) -> float:
+        """Growth over the second half of the run (median of the last three samples minus the
+        median of the three around the middle): a leak keeps growing there, while the
+        allocator's warm-up plateau (seen in the first samples) does not."""
+        n = len(self.samples_mib)
+        mid = n // 2
+        late = statistics.median(self.samples_mib[-3:])
+        middle = statistics.median(self.samples_mib[max(mid - 1, 0) : mid + 2])
+        return late - middle
 
 
 def memory_run(

@@ -8,10 +8,12 @@ Sizes come from the environment so that ``make soak`` can scale them:
 ``BOUNDSVC_LOAD_REQUESTS`` (400 requests of the memory run, one POST in twenty).
 
 Memory: the resident set of the whole server process tree (supervisor, two workers, their
-symbolic sandbox processes; ``VmRSS``) after warm-up, and after the run; the growth must stay
-under ``MARGIN_MIB`` (a leak of one certificate document per request, ~8 kB, over 400
-requests would be ~3 MiB; a retained 80 kB residual array per certificate POST would be
->3 MiB; the margin is for allocator noise across four processes).
+symbolic sandbox processes; ``VmRSS``) sampled during the run. Over the second half the
+growth must stay under ``LATE_MARGIN_MIB`` (a leak keeps growing there; the allocator's
+warm-up plateau, 13-20 MiB in the first samples of a fresh environment, does not), and over
+the whole run under ``MARGIN_MIB``. The bounded run detects only gross leaks (a retained
+residual array per certificate POST); the long form in ``make soak`` (10,000 requests)
+is the sensitive one.
 """
 
 from __future__ import annotations
@@ -31,7 +33,8 @@ CERTIFICATES = int(os.environ.get("BOUNDSVC_LOAD_CERTIFICATES", "12"))
 CLIENTS = int(os.environ.get("BOUNDSVC_LOAD_CLIENTS", "8"))
 VALUES = int(os.environ.get("BOUNDSVC_LOAD_VALUES", "10000"))
 REQUESTS = int(os.environ.get("BOUNDSVC_LOAD_REQUESTS", "400"))
-MARGIN_MIB = 24.0
+MARGIN_MIB = 48.0
+LATE_MARGIN_MIB = 12.0
 
 
 @pytest.fixture
@@ -73,5 +76,8 @@ def test_concurrent_certificates_zero_errors_nothing_lost_memory_steady(
         assert len(trace.samples_mib) >= 8
         assert trace.baseline > 50  # really the server tree (Python + numpy + sympy)
         print("memory", trace.samples_mib)
+        # no trend over the second half (a leak), and the whole run within a looser bound
+        # that also holds the allocator's warm-up plateau of a fresh environment
+        assert trace.late_growth <= LATE_MARGIN_MIB, trace.samples_mib
         assert trace.growth <= MARGIN_MIB, trace.samples_mib
         assert len(listed_ids(client)) == CERTIFICATES + 4 + len(memory.ids)
