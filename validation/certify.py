@@ -45,6 +45,8 @@ class Outcome:
     true_profile: list[float | None]
     meta: dict[str, Any]
     failures: list[str] = field(default_factory=list)
+    #: steady problems: the true L2 error in space (the other true errors are None)
+    true_space: float | None = None
 
     @property
     def status(self) -> str:
@@ -54,9 +56,16 @@ class Outcome:
         v = (self.certificate.get("bound") or {}).get(which)
         return float(v) if isinstance(v, int | float) else None
 
-    def effectivity(self, which: str = "l2_space_time") -> float | None:
+    def effectivity(self, which: str | None = None) -> float | None:
+        """``bound / true error``; default: space-time (steady problems: ``l2_space``)."""
+        which = which or ("l2_space" if self.problem.is_steady else "l2_space_time")
         b = self.bound(which)
-        e = self.true_space_time if which == "l2_space_time" else self.true_final_time
+        truths = {
+            "l2_space_time": self.true_space_time,
+            "l2_final_time": self.true_final_time,
+            "l2_space": self.true_space,
+        }
+        e = truths.get(which)
         return b / e if b is not None and e else None
 
     @property
@@ -271,6 +280,8 @@ def certify_network(
     problem's optional components), ask the plan for it and send ``d/dt`` of the boundary
     residual; the service reports the smaller of the lifted and the flux estimate.
     """
+    if problem.is_steady:
+        return certify_steady(api, problem, model, weights_key=weights_key)
     info = api.problem(problem.problem)
     failures: list[str] = []
     if info["family"] != problem.family:
@@ -329,3 +340,84 @@ def exact_norm(problem: Problem, t_limit: float = math.inf) -> float | None:
     tt, xx = np.meshgrid(ts, xs, indexing="ij")
     u2 = problem.exact(tt, xx) ** 2
     return float(math.sqrt(np.einsum("i,j,ij->", wt, wx, u2)))
+
+
+def steady_residuals(
+    problem: Problem, model: MLP, plan: Mapping[str, Any]
+) -> dict[str, FloatArray]:
+    """Steady problems: the interior residual and ``u_model - g`` at the plan's face nodes."""
+    out: dict[str, FloatArray] = {}
+    for name in ("interior", "boundary"):
+        comp = _component(plan, name)
+        if comp is None:
+            continue
+        pts = _as_model_points(problem, comp)
+        if name == "interior":
+            f = residual_fields(model, pts, problem.axes, problem.fields, outputs=problem.outputs)
+            if problem.source_term is not None:
+                f["f"] = np.asarray(problem.source_term(*pts.T), dtype=np.float64)
+            out[name] = np.asarray(problem.operator(f)[0], dtype=np.float64).reshape(-1)
+        else:
+            out[name] = _values(problem, model, pts)[:, 0] - problem.exact(*pts.T)
+    return out
+
+
+def true_error_steady(problem: Problem, model: MLP) -> float:
+    """``||u_model - u||_{L2(box)}`` by an independent tensor Gauss-Legendre rule
+    (:func:`scipy.special.roots_legendre`; 400 nodes in 1-D, 200 per axis in 2-D)."""
+    n = N_X if len(problem.axes) == 1 else N_ST
+    rules = [_gl(n, lo, hi) for lo, hi in problem.box]
+    grids = np.meshgrid(*(r[0] for r in rules), indexing="ij")
+    pts = np.column_stack([g.ravel() for g in grids])
+    w = np.ones(1)
+    for r in rules:
+        w = np.multiply.outer(w, r[1]).ravel()
+    e = _values(problem, model, pts)[:, 0] - problem.exact(*pts.T)
+    return float(math.sqrt(np.dot(w, e * e)))
+
+
+def certify_steady(
+    api: Api, problem: Problem, model: MLP, *, weights_key: str | None = None
+) -> Outcome:
+    """The steady path: no time axis, no regularity, only ``l2_space`` compared."""
+    info = api.problem(problem.problem)
+    failures: list[str] = []
+    if info["family"] != problem.family:
+        failures.append(f"classified as {info['family']}, expected {problem.family}")
+    plan = api.plan(info["problem_id"], problem.points, [])
+    res = steady_residuals(problem, model, plan)
+    wkey = weights_key or problem.key
+    regularity: dict[str, float | str] = {k: r.value for k, r in problem.regularity.items()}
+    notes = {k: r.note for k, r in problem.regularity.items()}
+    cert = api.certify(
+        info["problem_id"],
+        plan["plan_id"],
+        regularity,
+        res,
+        {"name": f"validation/{wkey}", "version": "1", "metadata": {"variant": "default"}},
+    )
+    truth = true_error_steady(problem, model)
+    out = Outcome(
+        problem,
+        "default",
+        wkey,
+        cert,
+        regularity,
+        notes,
+        None,
+        None,
+        [],
+        dict(model.meta),
+        failures,
+        truth,
+    )
+    if cert["status"] == "invalid-hypotheses":
+        failures.append(f"invalid-hypotheses: {cert.get('warnings')}")
+    if cert["status"] != "valid":
+        failures.append(f"status {cert['status']}, expected valid")
+    b = out.bound("l2_space")
+    if b is None:
+        failures.append("no l2_space bound")
+    elif b < truth:
+        failures.append(f"BOUND BELOW TRUE ERROR: l2_space bound {b:.6g} < true {truth:.6g}")
+    return out

@@ -28,6 +28,8 @@ TARGETS = {
     "ode-system": (100.0, "nonlinear ODE systems (the oscillator is linear)"),
     # the issue sets no target for hyperbolic families; the nonlinear one is shown
     "wave": (100.0, "linear hyperbolic: no target set, the nonlinear one shown"),
+    # steady, only l2_space: the median is of that effectivity (no final time)
+    "linear-elliptic": (10.0, "linear elliptic"),
 }
 
 
@@ -157,9 +159,14 @@ def _detail(o: Outcome) -> list[str]:
     p, c, m = o.problem, o.certificate, o.meta
     lines = [f"### `{p.key}`: {p.title}", ""]
     lines.append(f"- family `{c['family']}`; closed form: {p.source}")
-    lines.append(
-        f"- problem: `{p.problem['equation']}`, time {p.problem['time']}"
+    where = (
+        ", ".join(f"{a} in {v}" for a, v in p.problem["space"].items())
+        if p.is_steady
+        else f"time {p.problem['time']}"
         + (f", x in {p.problem['space']['x']}" if "space" in p.problem else "")
+    )
+    lines.append(
+        f"- problem: `{p.problem['equation']}`, {where}"
         + (f", parameters {p.problem.get('parameters')}" if p.problem.get("parameters") else "")
     )
     arch = "-".join(str(v) for v in m.get("architecture", []))
@@ -195,9 +202,48 @@ def _detail(o: Outcome) -> list[str]:
     return lines
 
 
+def _steady_dominant(o: Outcome) -> str:
+    """The term with the largest contribution to the steady bound (terms add linearly)."""
+    terms = [t for t in _terms(o) if isinstance(t.get("value"), int | float)]
+    total = sum(float(t["value"]) for t in terms)
+    if not terms or total <= 0:
+        return "n/a"
+    t = max(terms, key=lambda t: float(t["value"]))
+    return f"{t['name']} ({100 * float(t['value']) / total:.0f} %)"
+
+
+def _steady_section(results: Results) -> list[str]:
+    """The steady table: ``l2_space`` only (no time, no profile)."""
+    rows = [
+        [
+            f"`{o.weights_key}`",
+            f"`{o.problem.problem['equation']}`",
+            _f(o.true_space),
+            _f(o.bound("l2_space")),
+            _f(o.effectivity("l2_space"), ".1f"),
+            o.status,
+            _steady_dominant(o),
+        ]
+        for o in results.steady
+    ]
+    return [
+        "### Steady problems (linear elliptic): `l2_space` only",
+        "",
+        "No time axis: the certificate bounds the L2 error in space only (interior and "
+        "boundary residuals, docs/theory/elliptic.md); the true error is by an independent "
+        "tensor Gauss-Legendre rule in space (400 nodes in 1-D, 200 x 200 in 2-D). These rows "
+        "are not in the plot above (it shows space-time and final-time effectivities).",
+        "",
+        *_table(
+            ["network", "equation", "true L2", "bound L2", "eff L2", "status", "largest term"],
+            rows,
+        ),
+    ]
+
+
 def family_medians(results: Results) -> list[list[str]]:
     by: dict[str, list[Outcome]] = defaultdict(list)
-    for o in results.suite:
+    for o in [*results.suite, *results.steady]:
         by[o.problem.family].append(o)
     rows = []
     for fam, outs in by.items():
@@ -370,7 +416,13 @@ def write_report(results: Results) -> Path:
         "",
     ]
     L += _table(MAIN_HEADER, [_row(o) for o in results.suite])
-    L += ["", "### Median effectivity per family (space-time; final time alongside)", ""]
+    if results.steady:
+        L += ["", *_steady_section(results)]
+    L += [
+        "",
+        "### Median effectivity per family (space-time, steady: L2 in space; final time alongside)",
+        "",
+    ]
     L += _table(
         ["family", "problems", "median eff ST", "median eff T", "target", ""],
         family_medians(results),
@@ -468,7 +520,7 @@ def write_report(results: Results) -> Path:
     for s, png in zip(results.sweeps, pngs, strict=True):
         L += _sweep_section(s, png)
     L += ["## Per-problem details (regularity, terms and their rigor)", ""]
-    for o in [*results.suite, *(h for _, h in results.hard)]:
+    for o in [*results.suite, *results.steady, *(h for _, h in results.hard)]:
         L += _detail(o)
     if failures:
         L += ["## FAILURES", ""] + [f"- {f}" for f in failures] + [""]

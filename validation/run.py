@@ -50,9 +50,11 @@ class Results:
     service: str
     # (flux estimate, suite certificate) for the problems offered the boundary lifting
     lifting: list[tuple[Outcome, Outcome]] = field(default_factory=list)
+    # steady problems (linear elliptic): only ``l2_space`` is bounded
+    steady: list[Outcome] = field(default_factory=list)
 
     def all(self) -> list[Outcome]:
-        out = [*self.suite, *self.variants, *(h for _, h in self.hard)]
+        out = [*self.suite, *self.steady, *self.variants, *(h for _, h in self.hard)]
         out += [before for before, _ in self.lifting]
         for s in self.sweeps:
             out += [*s.outcomes, *s.extra]
@@ -70,10 +72,12 @@ def _log(msg: str) -> None:
 def _one(api: Api, problem: vp.Problem, **kw: Any) -> Outcome:
     o = certify_network(api, problem, load_model(problem, kw.get("weights_key")), **kw)
     eff = o.effectivity()
+    steady = o.problem.is_steady
+    true = o.true_space if steady else o.true_space_time
     _log(
         f"  {o.weights_key:<26} {o.variant:<16} {o.status:<8} "
-        f"bound {o.bound('l2_space_time') or float('nan'):.3e}  "
-        f"true {o.true_space_time or float('nan'):.3e}  "
+        f"bound {o.bound('l2_space' if steady else 'l2_space_time') or float('nan'):.3e}  "
+        f"true {true or float('nan'):.3e}  "
         f"eff {eff if eff is not None else float('nan'):8.2f}"
         + ("" if o.ok else "   <-- " + "; ".join(o.failures))
     )
@@ -164,6 +168,8 @@ def beyond(api: Api, sweep: Sweep, problem: vp.Problem, weights_key: str, t_limi
 def run_all(api: Api, service: str) -> Results:
     _log("suite:")
     suite = [_one(api, p) for p in vp.suite()]
+    _log("steady problems (l2_space only):")
+    steady = [_one(api, p) for p in vp.steady()]
     _log("tightening variants (same networks, other regularity):")
     variants = [_one(api, p, variant=v) for p in vp.suite() for v in p.variants]
     _log("boundary lifting off (the flux estimate alone), for the before/after comparison:")
@@ -227,7 +233,7 @@ def run_all(api: Api, service: str) -> Results:
         math.pi / 2,
     )
     sweeps += [bsweep, tsweep]
-    return Results(suite, variants, hard, sweeps, service, lifting)
+    return Results(suite, variants, hard, sweeps, service, lifting, steady)
 
 
 def main(argv: list[str] | None = None) -> int:

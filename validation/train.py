@@ -37,6 +37,9 @@ class TorchLib:
 
 
 def _scaling(problem: Problem) -> tuple[np.ndarray, np.ndarray]:
+    if problem.is_steady:
+        box = np.array(problem.box)
+        return (box[:, 0] + box[:, 1]) / 2, (box[:, 1] - box[:, 0]) / 2
     t0, t1 = problem.time
     lo = [t0]
     hi = [t1]
@@ -86,6 +89,8 @@ class Net(nn.Module):
 def torch_fields(net: Net, pts: torch.Tensor) -> dict[str, torch.Tensor]:
     """The fields the problem's operator needs, by autograd."""
     p = net.problem
+    if p.is_steady:
+        return _steady_fields(net, pts)
     pts = pts.detach().requires_grad_(True)
     out = net(pts)
     fields: dict[str, torch.Tensor] = {}
@@ -107,8 +112,47 @@ def torch_fields(net: Net, pts: torch.Tensor) -> dict[str, torch.Tensor]:
     return fields
 
 
+def _steady_fields(net: Net, pts: torch.Tensor) -> dict[str, torch.Tensor]:
+    """Steady problems: ``u``, ``u_<a>``, ``u_<a><a>`` per space axis and the source ``f``."""
+    p = net.problem
+    src = pts.detach().numpy()
+    pts = pts.detach().requires_grad_(True)
+    u = net(pts)[:, 0]
+    fields: dict[str, torch.Tensor] = {"u": u}
+    (g,) = torch.autograd.grad(u.sum(), pts, create_graph=True)
+    for i, a in enumerate(p.axes):
+        fields[f"u_{a}"] = g[:, i]
+        if f"u_{a}{a}" in p.fields:
+            (g2,) = torch.autograd.grad(g[:, i].sum(), pts, create_graph=True)
+            fields[f"u_{a}{a}"] = g2[:, i]
+    if p.source_term is not None:
+        fields["f"] = torch.tensor(p.source_term(*src.T))
+    return fields
+
+
+def _sample_steady(problem: Problem, rng: np.random.Generator) -> dict[str, torch.Tensor]:
+    """Steady problems: random interior points and ``n_bc`` random points on every face."""
+    cfg = problem.train
+    box = problem.box
+    col = np.column_stack([rng.uniform(lo, hi, cfg.n_col) for lo, hi in box])
+    faces = []
+    for i, (lo, hi) in enumerate(box):
+        for v in (lo, hi):
+            face = np.column_stack([rng.uniform(a, b, cfg.n_bc) for a, b in box])
+            face[:, i] = v
+            faces.append(face)
+    bc = np.concatenate(faces)
+    return {
+        "col": torch.tensor(col),
+        "bc": torch.tensor(bc),
+        "bc_val": torch.tensor(problem.exact(*bc.T))[:, None],
+    }
+
+
 def sample(problem: Problem, rng: np.random.Generator) -> dict[str, torch.Tensor]:
     """Uniformly random collocation, initial and boundary points with their target values."""
+    if problem.is_steady:
+        return _sample_steady(problem, rng)
     cfg = problem.train
     t0, t1 = problem.time
     out: dict[str, torch.Tensor] = {}
@@ -142,9 +186,11 @@ def sample(problem: Problem, rng: np.random.Generator) -> dict[str, torch.Tensor
 def losses(net: Net, pts: dict[str, torch.Tensor]) -> dict[str, torch.Tensor]:
     res = net.problem.operator(torch_fields(net, pts["col"]))
     pde = sum(r.pow(2).mean() for r in res)
-    ic = (net(pts["ic"]) - pts["ic_val"]).pow(2).mean()
-    out = {"pde": pde, "ic": ic}
-    data = ic
+    out = {"pde": pde}
+    data: Any = 0.0
+    if "ic" in pts:  # absent for steady problems
+        out["ic"] = (net(pts["ic"]) - pts["ic_val"]).pow(2).mean()
+        data = out["ic"]
     if "ic_t_val" in pts:
         out["ic_t"] = (torch_fields(net, pts["ic"])["u_t"] - pts["ic_t_val"]).pow(2).mean()
         data = data + out["ic_t"]

@@ -11,6 +11,7 @@ from __future__ import annotations
 
 from collections.abc import Iterator
 from pathlib import Path
+from typing import Any
 
 import pytest
 
@@ -21,6 +22,7 @@ from tests.inprocess import InProcessClient
 from validation.certify import certify_network
 from validation.models import load_model, weights_path
 from validation.problems import heat_dirichlet
+from validation.problems.elliptic import poisson_square_mode, wall_profile
 from validation.problems.wave import travelling_pulse
 from validation.service import RawApi
 
@@ -74,3 +76,21 @@ def test_cached_wave_network_bound_above_true_error(api: RawApi) -> None:
     assert outcome.bound("l2_space_time") >= outcome.true_space_time  # type: ignore[operator]
     assert outcome.bound("l2_final_time") >= outcome.true_final_time  # type: ignore[operator]
     assert 0.0 < outcome.true_space_time < 1e-2
+
+
+@pytest.mark.parametrize("make", [poisson_square_mode, wall_profile], ids=lambda f: f.__name__)
+def test_cached_elliptic_network_bound_above_true_error(api: RawApi, make: Any) -> None:
+    # poisson_square_mode: u = sin(pi x) sin(pi y), the first Dirichlet mode of the unit square
+    # by separation of variables (Evans, PDE, 2nd ed. 2010, sec. 4.1, from memory);
+    # wall_profile: manufactured u = exp(x) (Roache, J. Fluids Eng. 124 (2002) 4-10); steady
+    # duality bound of docs/theory/elliptic.md, only l2_space is bounded
+    problem = make()
+    assert weights_path(problem).exists(), "cached weights are part of the repository"
+    outcome = certify_network(api, problem, load_model(problem))
+    assert outcome.failures == []
+    assert outcome.status == "valid"
+    assert outcome.certificate["family"] == "linear-elliptic"
+    assert outcome.bound("l2_space_time") is None and outcome.bound("l2_final_time") is None
+    assert outcome.true_space is not None
+    assert outcome.bound("l2_space") >= outcome.true_space  # type: ignore[operator]
+    assert 0.0 < outcome.true_space < 1e-2

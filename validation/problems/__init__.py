@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from validation.problems._base import JetLib, Lift, NumpyLib, Problem, Reg, TrainConfig, const
 from validation.problems.burgers import burgers_compressive, burgers_expansive, burgers_front
+from validation.problems.elliptic import poisson_square_mode, wall_profile
 from validation.problems.heat import advection_diffusion_mode, heat_dirichlet
 from validation.problems.ode import oscillator, riccati_tan
 from validation.problems.semilinear import allen_cahn_front, fisher_kpp
@@ -42,6 +43,11 @@ def suite() -> list[Problem]:
     ]
 
 
+def steady() -> list[Problem]:
+    """The steady table (``l2_space`` only): the linear elliptic family."""
+    return [poisson_square_mode(), wall_profile()]
+
+
 def hard_constrained() -> dict[str, Problem]:
     """Hard-constrained twins of suite problems (key of the soft one -> hard problem)."""
     return {
@@ -78,6 +84,7 @@ def all_trainable() -> list[Problem]:
     seen: dict[str, Problem] = {}
     for p in [
         *suite(),
+        *steady(),
         *hard_constrained().values(),
         *width_sweep(),
         *steps_sweep(),
@@ -107,6 +114,7 @@ __all__ = [
     "const",
     "hard_constrained",
     "heat_sweep_problem",
+    "steady",
     "steps_sweep",
     "suite",
     "tan_sweep",

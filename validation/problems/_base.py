@@ -114,6 +114,20 @@ class Problem:
     variants: dict[str, dict[str, Reg]] = field(default_factory=dict)
     lift: Lift | None = None
     notes: str = ""
+    #: steady problems: the equation's right-hand side ``f(*space columns)`` (numpy), sent to
+    #: the operator as the field ``"f"`` (the operator cannot see coordinates)
+    source_term: Callable[..., FloatArray] | None = None
+
+    @property
+    def is_steady(self) -> bool:
+        """No time axis: ``exact(*space columns)``, only ``l2_space`` is bounded."""
+        return "t" not in self.axes
+
+    @property
+    def box(self) -> list[tuple[float, float]]:
+        """``(lo, hi)`` of each space axis, in ``axes`` order (steady problems)."""
+        sp = self.problem["space"]
+        return [(float(sp[a][0]), float(sp[a][1])) for a in self.axes]
 
     @property
     def is_ode(self) -> bool:
