@@ -25,6 +25,7 @@ from boundsvc.errors import ResidualError
 from boundsvc.expr import ExpressionError
 from boundsvc.families import Classified
 from boundsvc.families._analysis import AnalysedProblem
+from boundsvc.families._linear import field_symbols
 from boundsvc.quadrature import Component, Plan
 from boundsvc.residuals import decode_values
 
@@ -127,13 +128,7 @@ def _field_symbols(
 
 
 def _needed(exprs: Sequence[sympy.Expr], problem: AnalysedProblem) -> set[sympy.Symbol]:
-    ns = problem.namespace
-    return {
-        s
-        for e in exprs
-        for s in e.free_symbols
-        if (info := ns.describe(s)) is not None and info.kind == "field"
-    }
+    return set().union(*(field_symbols(e, problem.namespace) for e in exprs))
 
 
 def _residual_exprs(problem: AnalysedProblem, component: str) -> list[sympy.Expr]:

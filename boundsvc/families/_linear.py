@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Iterable, Sequence
 from dataclasses import dataclass
 
 import sympy
@@ -43,6 +43,22 @@ def affine_split(expr: sympy.Expr, gens: Sequence[sympy.Symbol]) -> AffineSplit 
         coefficients={g: sympy.expand(c) for g, c in coefficients.items()},
         remainder=sympy.expand(remainder),
     )
+
+
+def field_symbols(expr: sympy.Expr, ns: Namespace) -> set[sympy.Symbol]:
+    """The field symbols (unknowns and their derivatives) of ``ns`` in ``expr``."""
+    return {
+        s
+        for s in expr.free_symbols
+        if (info := ns.describe(s)) is not None and info.kind == "field"
+    }
+
+
+def foreign_field_names(
+    expr: sympy.Expr, allowed: Iterable[sympy.Symbol], ns: Namespace
+) -> list[str]:
+    """Sorted user names of the fields in ``expr`` that are not ``allowed`` (for refusals)."""
+    return sorted(ns.display_name(s) for s in field_symbols(expr, ns) - set(allowed))
 
 
 def field_names(expr: sympy.Expr, ns: Namespace) -> list[str]:

@@ -44,7 +44,7 @@ from boundsvc.families._base import (
     SourceInfo,
 )
 from boundsvc.families._common import best_of, data_contradictions, evaluate_on, gradient_keys
-from boundsvc.families._linear import affine_split, field_names
+from boundsvc.families._linear import affine_split, field_names, foreign_field_names
 from boundsvc.gronwall import Rate, output_times
 from boundsvc.intervals import IntervalError, certified_max
 from boundsvc.quadrature import (
@@ -466,13 +466,9 @@ class AdvectionDiffusionFamily(Family):
         for a in axes:
             gens += [ns.field(u, (a,)), ns.field(u, (a, a))]
         expr = problem.numeric[0]
-        others = [
-            s
-            for s in expr.free_symbols
-            if s not in gens and (info := ns.describe(s)) is not None and info.kind == "field"
-        ]
+        others = foreign_field_names(expr, gens, ns)
         if others:
-            names = ", ".join(sorted(ns.display_name(s) for s in others))
+            names = ", ".join(others)
             return (
                 f"the equation contains {names}; this family has u_t, first and pure second "
                 "space derivatives only"

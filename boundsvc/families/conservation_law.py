@@ -41,7 +41,7 @@ from boundsvc.families._base import (
     SourceInfo,
 )
 from boundsvc.families._common import best_of, data_contradictions, evaluate_on
-from boundsvc.families._linear import affine_split, field_names
+from boundsvc.families._linear import affine_split, field_names, foreign_field_names
 from boundsvc.gronwall import Rate
 from boundsvc.intervals import IntervalError, certified_max
 from boundsvc.quadrature import face_slice_integrals, slice_integrals, total_integral
@@ -91,15 +91,9 @@ class ConservationLawFamily(Family):
         u = problem.unknowns[0]
         fu, ut, ux, uxx = (ns.field(u, d) for d in ((), ("t",), ("x",), ("x", "x")))
         expr = problem.numeric[0]
-        others = [
-            s
-            for s in expr.free_symbols
-            if s not in (fu, ut, ux, uxx)
-            and (info := ns.describe(s)) is not None
-            and info.kind == "field"
-        ]
+        others = foreign_field_names(expr, (fu, ut, ux, uxx), ns)
         if others:
-            names = ", ".join(sorted(ns.display_name(s) for s in others))
+            names = ", ".join(others)
             return f"the equation contains {names}; a conservation law has u_t, u_x, u_xx only"
         split = affine_split(expr, [ut, ux, uxx])
         if isinstance(split, str):
@@ -456,10 +450,10 @@ class ClassifiedConservationLaw(Classified):
             q = self._relative_flux(g + rb, g)
             signs = np.where(bnd.face_index == 0, 2.0, -2.0)  # face 0: x_L (low), face 1: x_R
             flux = face_slice_integrals(bnd, signs * q, n_t).sum(axis=0)
-            # with the model as reference the boundary flux is q(u|u_model) = q(g|g + R_b)
-            model_flux = face_slice_integrals(bnd, signs * self._relative_flux(g, g + rb), n_t).sum(
-                axis=0
-            )
+            if model_parts:
+                # with the model as reference the boundary flux is q(u|u_model) = q(g|g + R_b)
+                q_model = self._relative_flux(g, g + rb)
+                model_flux = face_slice_integrals(bnd, signs * q_model, n_t).sum(axis=0)
             detail = "q(u_model|g) evaluated from the boundary data and residuals, signed"
         else:
             box = {self.u: (-big_m, big_m)}

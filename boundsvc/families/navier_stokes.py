@@ -43,7 +43,7 @@ from boundsvc.families._base import (
     Requirement,
     SourceInfo,
 )
-from boundsvc.families._linear import affine_split
+from boundsvc.families._linear import affine_split, field_symbols
 from boundsvc.families.ode_system import PiecewiseConstantRate
 from boundsvc.gronwall import Rate
 from boundsvc.intervals import IntervalError, enclose
@@ -100,12 +100,7 @@ class _Roles:
 
 
 def _field_symbols(expr: sympy.Expr, problem: AnalysedProblem) -> set[sympy.Symbol]:
-    ns = problem.namespace
-    return {
-        s
-        for s in expr.free_symbols
-        if (info := ns.describe(s)) is not None and info.kind == "field"
-    }
+    return field_symbols(expr, problem.namespace)
 
 
 def _is_constant(expr: sympy.Expr, problem: AnalysedProblem) -> bool:

@@ -43,7 +43,7 @@ from boundsvc.families._base import (
     SourceInfo,
 )
 from boundsvc.families._common import data_contradictions, gradient_keys
-from boundsvc.families._linear import affine_split, field_names
+from boundsvc.families._linear import affine_split, field_names, foreign_field_names
 from boundsvc.families.advection_diffusion import (
     FRIEDRICHS_REFERENCE,
     INTERVAL_REFERENCE,
@@ -178,12 +178,7 @@ class SemilinearParabolicFamily(Family):
         second = {a: ns.field(name, (a, a)) for a in axes}
         gens = [ut, *first.values(), *second.values()]
         expr = problem.numeric[0]
-        known = {u, *gens}
-        others = sorted(
-            ns.display_name(s)
-            for s in expr.free_symbols
-            if s not in known and (info := ns.describe(s)) is not None and info.kind == "field"
-        )
+        others = foreign_field_names(expr, {u, *gens}, ns)
         if others:
             return (
                 f"the equation contains {', '.join(others)}; a semilinear parabolic equation has "

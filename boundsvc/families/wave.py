@@ -56,7 +56,7 @@ from boundsvc.families._common import (
     evaluate_on,
     gradient_keys,
 )
-from boundsvc.families._linear import affine_split, field_names
+from boundsvc.families._linear import affine_split, field_names, foreign_field_names
 from boundsvc.families.advection_diffusion import offending_term
 from boundsvc.gronwall import Rate
 from boundsvc.quadrature import (
@@ -151,11 +151,7 @@ class WaveFamily(Family):
         expr = problem.numeric[0]
         if utt not in expr.free_symbols:
             return "the equation has no second time derivative u_tt (a wave equation has one)"
-        others = sorted(
-            ns.display_name(s)
-            for s in expr.free_symbols
-            if s not in gens and (info := ns.describe(s)) is not None and info.kind == "field"
-        )
+        others = foreign_field_names(expr, gens, ns)
         if others:
             return (
                 f"the equation contains {', '.join(others)}; a wave equation here has u_tt, u_t, "
