@@ -98,6 +98,9 @@ def _refine(
         return float(value) if math.isfinite(value) or value == -math.inf else math.inf
 
     lo, hi = math.log(best) - math.log(10) / 2, math.log(best) + math.log(10) / 2
+    if ineq.young_cap is not None:  # the weight may not exceed the cap (H^-1 estimates)
+        hi = min(hi, math.log(ineq.young_cap))
+        lo = min(lo, hi - math.log(10) / 2)
     a = hi - _GOLDEN * (hi - lo)
     b = lo + _GOLDEN * (hi - lo)
     fa, fb = objective(a), objective(b)
@@ -134,6 +137,9 @@ def assemble_bound(ineq: EnergyInequality, grid: TimeGrid) -> BoundResult:
         lambdas = [1e-12 / length]
     else:
         lambdas = list(_GRID / length)
+        if ineq.young_cap is not None:
+            cap = float(ineq.young_cap)
+            lambdas = [lam for lam in lambdas if lam < cap] + [cap]
     for lam in lambdas:
         cache[lam] = _run(ineq, grid, lam)
 

@@ -132,6 +132,11 @@ class EnergyInequality:
     # ``||e(t)|| <= sqrt(Y(t)) + norm_addition(t)`` (a lifting, triangle inequality); ``None``
     # when Y bounds the error itself
     norm_addition: NormAddition | None = None
+    # largest admissible Young weight (None: any lambda > 0); an estimate that takes the weight
+    # out of a finite dissipation budget (the H^-1 residual estimate) sets it
+    young_cap: float | None = None
+    # the lifted estimate: ||L B r|| at the time nodes (its H^-1 twin adds it again)
+    lifting_residual: FloatArray | None = None
     # other valid inequalities for the same certificate: each is assembled and the one with
     # the smallest space-time bound is reported (``label`` names an inequality in warnings)
     alternatives: list[EnergyInequality] = field(default_factory=list)

@@ -22,7 +22,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Mapping, Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 import sympy
@@ -44,6 +44,7 @@ from boundsvc.families._base import (
     SourceInfo,
 )
 from boundsvc.families._common import best_of, data_contradictions, evaluate_on, gradient_keys
+from boundsvc.families._dual import dual_norm_squared
 from boundsvc.families._linear import affine_split, field_names, foreign_field_names
 from boundsvc.gronwall import Rate, output_times
 from boundsvc.intervals import IntervalError, certified_max
@@ -998,7 +999,91 @@ class ClassifiedADR(Classified):
                 flux.warnings.append(f"boundary lifting not used: {lifted}")
             else:
                 flux.alternatives.append(lifted)
+                twin = self._dual_twin(lifted, inputs, residual, lifted.lifting_residual)
+                if twin is not None:
+                    flux.alternatives.append(twin)
+        zero_trace = (
+            bool(domain.dirichlet_axes)
+            and set(domain.dirichlet_axes) <= set(exact_axes)
+            and not any(np.any(v) for v in forcing.values())
+        )
+        if zero_trace:
+            # zero-trace error (exact Dirichlet data, no face term): the H^-1 estimate applies
+            twin = self._dual_twin(flux, inputs, residual, None)
+            if twin is not None:
+                flux.label = flux.label or "L2 residual estimate"
+                flux.alternatives.append(twin)
         return flux
+
+    # -- the H^-1 residual estimate (1-D, zero-trace error) ---------------------------------
+    def _dual_twin(
+        self,
+        base: EnergyInequality,
+        inputs: CertifyInputs,
+        residual: FloatArray,
+        lb_norm: FloatArray | None,
+    ) -> EnergyInequality | None:
+        """``base`` with the interior residual measured in H^-1 instead of L2 (steps H1-H6 of
+        docs/theory/advection-diffusion.md): ``2 (F, v) <= ||F||_{-1}^2/delta + delta ||v_x||^2``
+        with ``delta`` taken out of the Friedrichs share of the dissipation, so the Young weight
+        ``lambda = delta (pi/L)^2`` is capped at ``2 share k_inf (pi/L)^2``. None where it does
+        not apply (several space axes, a non-tensor plan, no Friedrichs decay on the axis)."""
+        domain = self.problem.domain
+        plan = inputs.plan
+        grid = plan.time
+        if grid is None or len(domain.space_axes) != 1 or len(domain.dirichlet_axes) != 1:
+            return None
+        axis = domain.dirichlet_axes[0]
+        treatments = self._treatments((axis,) if self.k_inf[axis] > 0 else ())
+        tr = treatments.get(axis)
+        if tr is None or not tr.friedrichs:
+            return None
+        length = domain.length(axis)
+        interior = plan.components["interior"]
+        values = np.asarray(inputs.residuals["interior"], dtype=np.float64)
+        dual = dual_norm_squared(interior, values, grid.size, length)
+        if dual is None or not np.all(np.isfinite(dual)):
+            return None
+        # the L2 quadrature allowance of this slice (upper limit minus the plain rule), carried
+        # over through ||F||_{-1} <= (L/pi) ||F|| (Poincare, by duality)
+        assert interior.slice_weights is not None
+        plain = np.einsum(
+            "ij,ij->i",
+            interior.slice_weights.reshape(grid.size, -1),
+            np.square(values).reshape(grid.size, -1),
+        )
+        poincare = (math.pi / length) ** 2
+        scaled = poincare * np.maximum(dual, 0.0) + np.maximum(residual - plain, 0.0)
+        # ||L B r||_{-1} <= (L/pi) ||L B r||: in the scaled units it enters as ||L B r||
+        extra = np.zeros(grid.size) if lb_norm is None else lb_norm
+        share = 1.0 - tr.theta if tr.kind == "young" else 1.0
+        cap = 2.0 * share * self.k_inf[axis] * poincare
+        if not cap > 0:
+            return None
+        what = "of the lifted error " if lb_norm is not None else ""
+        return replace(
+            base,
+            residual=np.square(np.sqrt(scaled) + extra),
+            residual_info=SourceInfo(
+                f"interior residual {what}in H^-1",
+                "(pi/L)^2 ||F||_{-1}^2/lambda, lambda <= 2 (1-theta) k_inf (pi/L)^2",
+                "int_t0^t e^{A(s,t)} (pi/L)^2 ||F(s)||_{-1}^2 / lambda ds, "
+                "||F||_{-1}^2 = int (Q - mean Q)^2, Q = int_a^x F",
+                "heuristic",
+                "per time node: the panel interpolant of the interior residual integrated once "
+                "in the Legendre basis (exact for the interpolant), plus the L2 quadrature "
+                "allowance; ||L B r|| by Poincare duality",
+            ),
+            young_cap=cap,
+            alternatives=[],
+            label=(base.label or "L2 residual estimate") + ", H^-1 residual",
+            warnings=[
+                *base.warnings,
+                "H^-1 residual: the interior residual is measured in the dual norm of H^1_0 "
+                "(the heat operator's smoothing of oscillating residuals is credited); the "
+                f"Young weight is capped at {cap:.6g} (part of the Friedrichs decay is spent)",
+            ],
+        )
 
     # -- the boundary lifting (1-D Dirichlet) ------------------------------------------------
     def _lifted_inequality(
@@ -1096,6 +1181,7 @@ class ClassifiedADR(Classified):
             failed_hypotheses=list(failed),
             rate_rigor="proven",
             inputs={"rate_max": float(np.max(values)), "rate_min": float(np.min(values))},
+            lifting_residual=lb_norm,
             norm_addition=NormAddition(
                 profile=b_profile,
                 space_time=b_space_time,
