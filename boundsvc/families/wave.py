@@ -44,6 +44,7 @@ from boundsvc.families._base import (
     EnergyInequality,
     Family,
     FloatArray,
+    NormAddition,
     Requirement,
     SourceInfo,
 )
@@ -57,7 +58,14 @@ from boundsvc.families._common import (
     gradient_keys,
 )
 from boundsvc.families._linear import affine_split, field_names, foreign_field_names
-from boundsvc.families.advection_diffusion import offending_term
+from boundsvc.families.advection_diffusion import (
+    LIFTING_RATE_TOLERANCE,
+    at_output_times,
+    face_traces,
+    interpolant_rate,
+    lifting_norm,
+    offending_term,
+)
 from boundsvc.gronwall import Rate
 from boundsvc.quadrature import (
     Component,
@@ -530,7 +538,7 @@ class ClassifiedWave(Classified):
                 rigor="proven",
             )
         )
-        return EnergyInequality(
+        base = EnergyInequality(
             base_rate=Rate(constant=rate),
             initial=initial_energy,
             initial_info=SourceInfo(
@@ -559,6 +567,158 @@ class ClassifiedWave(Classified):
             ],
             rate_rigor="proven",
             inputs={"mu": mu, "rate": rate},
+        )
+        if "boundary_energy_flux" in forcing and domain.dimension == 1:
+            lifted = self._lifted_inequality(
+                inputs, base.failed_hypotheses, mu, residual * mu, initial_energy
+            )
+            if isinstance(lifted, str):
+                base.warnings.append(f"boundary lifting not used: {lifted}")
+            else:
+                base.label = "boundary flux estimate"
+                base.alternatives.append(lifted)
+        return base
+
+    # -- the boundary lifting (1-D Dirichlet) ------------------------------------------------
+    def _lifted_inequality(
+        self,
+        inputs: CertifyInputs,
+        failed: list[str],
+        mu: float,
+        residual: FloatArray,
+        initial_energy: float,
+    ) -> EnergyInequality | str:
+        """The estimate for ``v = w - B r`` (zero trace, no boundary energy flux) plus
+        ``||B r||``: steps W1-W7 of docs/theory/wave.md, "Boundary lifting". ``mu``, the
+        interior residual slices ``residual`` and ``initial_energy`` (``E(t0)/mu``) are those of
+        the flux estimate (same integrals, no second quadrature statement)."""
+        plan, res = inputs.plan, inputs.residuals
+        grid = plan.time
+        assert grid is not None
+        domain = self.problem.domain
+        if domain.dimension != 1 or len(domain.dirichlet_axes) != 1:
+            return "the lifting is implemented for one space axis with Dirichlet ends"
+        traces = face_traces(plan, res)
+        if isinstance(traces, str):
+            return traces
+        axis = domain.dirichlet_axes[0]
+        length = domain.length(axis)
+        r = np.stack([traces.low, traces.high], axis=1)
+        r_t = np.stack([traces.low_t, traces.high_t], axis=1)
+        # W1: r_t must be the derivative of r (as for the parabolic lifting), and r_tt comes
+        # from the time interpolant of r_t, cross-checked against the second derivative of
+        # the interpolant of r; their difference is added to ||L B r|| (W3)
+        check = interpolant_rate(grid, r)
+        scale = max(float(np.max(np.abs(check))), float(np.max(np.abs(r_t))))
+        gap = float(np.max(np.abs(check - r_t)))
+        if gap > LIFTING_RATE_TOLERANCE * scale + 1e-300:
+            return (
+                f"boundary_t differs from the time derivative of the interpolated boundary "
+                f"residual by {gap:.3g} (largest magnitude {scale:.3g})"
+            )
+        r_tt = interpolant_rate(grid, r_t)
+        r_tt_other = interpolant_rate(grid, check)
+        spread = np.abs(r_tt - r_tt_other)
+        scale2 = max(float(np.max(np.abs(r_tt))), float(np.max(np.abs(r_tt_other))))
+        if float(np.max(spread)) > LIFTING_RATE_TOLERANCE * scale2 + 1e-300:
+            return (
+                "the second time derivative of the boundary residual is not determined by the "
+                f"samples (two interpolants differ by {float(np.max(spread)):.3g}, largest "
+                f"magnitude {scale2:.3g}): use more time nodes"
+            )
+        # W3: L B r = (r'' + b r' + m r) phi + a (r_b - r_a)/L, linear in x between the ends
+        jump = (r[:, 1] - r[:, 0]) / length
+        a_x = self.a.get(axis, 0.0)
+        ends = r_tt + self.b * r_t + self.m * r + a_x * jump[:, None]
+        lb_norm = lifting_norm(length, ends[:, 0], ends[:, 1]) + lifting_norm(
+            length, spread[:, 0], spread[:, 1]
+        )
+        forcing_v = np.square(np.sqrt(np.maximum(residual, 0.0)) + lb_norm)
+        # W4: initial data of v; Minkowski in the energy norm:
+        # sqrt(E_v(t0)) <= sqrt(E_w(t0)) + sqrt(E(B r)(t0))
+        start = at_output_times(grid, np.concatenate([r, r_t], axis=1))[0]
+        br0 = float(lifting_norm(length, start[0:1], start[1:2])[0])
+        brt0 = float(lifting_norm(length, start[2:3], start[3:4])[0])
+        brx0 = abs(float(start[1] - start[0])) / math.sqrt(length)
+        lift_energy = (mu * br0**2 + brt0**2 + self.k[axis] * brx0**2) / mu
+        initial_v = (math.sqrt(max(initial_energy, 0.0)) + math.sqrt(lift_energy)) ** 2
+        rate = energy_rate(mu, self.b, self.m, self.transport)
+        # W7: ||w|| <= ||v|| + ||B r||
+        b_out = at_output_times(grid, r)
+        b_profile = lifting_norm(length, b_out[:, 0], b_out[:, 1])
+        b_nodes = lifting_norm(length, r[:, 0], r[:, 1])
+        b_space_time = math.sqrt(float(np.dot(grid.weights, np.square(b_nodes))))
+        constants = [c.with_value(None) for c in self.constants()]
+        constants[0] = constants[0].with_value(initial_v, "heuristic")
+        constants[1] = constants[1].with_value(rate, "proven")
+        constants[2] = constants[2].with_value(initial_v * mu, "heuristic")
+        constants.append(
+            ConstantInfo(
+                name="boundary lifting",
+                symbol="B r",
+                expression=(
+                    f"max ||B r|| = {float(np.max(b_nodes)):.6g}, "
+                    f"max ||L B r|| = {float(np.max(lb_norm)):.6g}, mu = {mu:.6g}"
+                ),
+                latex=r"B r = r_a \frac{b - x}{L} + r_b \frac{x - a}{L}",
+                derivation=(
+                    "e = v + B r, B r the linear interpolant of the boundary residual between "
+                    "the ends; v has zero trace, so its energy estimate has no boundary flux.",
+                    "||L B r|| = sqrt(L/3 (P^2 + P Q + Q^2)), P, Q = r'' + b r' + m r + "
+                    "a (r_b - r_a)/L at the ends; r'' from the time interpolant of boundary_t, "
+                    "plus the difference to the second derivative of the interpolant of r.",
+                    "v(t0) = R_0 - B r(t0), v_t(t0) = R_t0 - B r_t(t0), "
+                    "v_x(t0) = d_x R_0 - (r_b - r_a)(t0)/L; sqrt(E_v(t0)) <= sqrt(E_w(t0)) + "
+                    "sqrt(E(B r)(t0)) (Minkowski in the energy norm), same mu as the flux "
+                    "estimate.",
+                ),
+                reference=REFERENCE,
+                value=float(np.max(b_nodes)),
+                rigor="heuristic",
+            )
+        )
+        return EnergyInequality(
+            base_rate=Rate(constant=rate),
+            initial=initial_v,
+            initial_info=SourceInfo(
+                "initial energy of the lifted error",
+                "E_v(t0)/mu",
+                "(sqrt(E_w(t0)) + sqrt(mu ||B r||^2 + ||B r_t||^2 + k (r_b - r_a)^2/L)(t0))^2 / mu",
+                "heuristic",
+                "quadrature of the initial residuals; r, r_t at t0 from their time interpolants",
+            ),
+            residual=forcing_v / mu,
+            residual_info=SourceInfo(
+                "interior residual of the lifted error",
+                "(||R|| + ||L B r||)^2/(lambda mu)",
+                "int_t0^t e^{A(s,t)} (||R(s)|| + ||L B r(s)||)^2 / (lambda mu) ds",
+                "heuristic",
+                "quadrature of the interior residual; ||L B r|| in closed form from the "
+                "boundary residual, boundary_t and its time interpolant",
+            ),
+            constants=constants,
+            warnings=[
+                "boundary lifting: e = v + B r with B r the linear interpolant of the boundary "
+                "residual between the ends; v has zero trace, so the energy estimate for v has "
+                "no boundary energy flux (no gradient bounds are used), and "
+                "||e|| <= ||v|| + ||B r||."
+            ],
+            failed_hypotheses=list(failed),
+            rate_rigor="proven",
+            inputs={"mu": mu, "rate": rate},
+            norm_addition=NormAddition(
+                profile=b_profile,
+                space_time=b_space_time,
+                info=SourceInfo(
+                    "boundary lifting",
+                    "||B r(t)||",
+                    "sqrt(L/3 (r_a(t)^2 + r_a(t) r_b(t) + r_b(t)^2))",
+                    "heuristic",
+                    "closed form at the time nodes; between them the time interpolant of the "
+                    "boundary residual, and the time quadrature for the space-time norm",
+                ),
+            ),
+            label="boundary lifting",
         )
 
     def _choose_mu(
