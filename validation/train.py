@@ -6,6 +6,10 @@ collocation points plus ``w_data`` times the mean squared initial and boundary m
 boundary term is absent for hard-constrained outputs and ODEs). Adam with a step learning-rate
 schedule, then L-BFGS with a strong-Wolfe line search, as in ``demo/train_heated_strip.py``.
 The training points are drawn at random and are NOT the service's Gauss-Legendre nodes.
+Navier-Stokes networks (inputs ``t, x, y``, outputs ``u, v, p``): mean squared momentum
+residuals plus ``w_div`` x the squared divergence, ``w_data`` x the initial and wall velocity
+mismatch, and ``w_per`` x the periodicity mismatch of ``u, v, p`` and of the first space
+derivatives of ``u, v`` on random face pairs (:class:`validation.problems.FlowProblem`).
 
     .venv/bin/python -m validation.train                 # train the missing networks
     .venv/bin/python -m validation.train --force KEY ... # retrain these
@@ -25,6 +29,7 @@ from torch import nn
 from boundsvc.client.mlp import MLP
 from validation.models import WEIGHTS, weights_path
 from validation.problems import Problem, all_trainable
+from validation.problems.navier_stokes import FlowProblem, is_flow
 
 
 class TorchLib:
@@ -37,6 +42,9 @@ class TorchLib:
 
 
 def _scaling(problem: Problem) -> tuple[np.ndarray, np.ndarray]:
+    if isinstance(problem, FlowProblem):
+        box = np.array([problem.time, *problem.space_box.values()])
+        return (box[:, 0] + box[:, 1]) / 2, (box[:, 1] - box[:, 0]) / 2
     if problem.is_steady:
         box = np.array(problem.box)
         return (box[:, 0] + box[:, 1]) / 2, (box[:, 1] - box[:, 0]) / 2
@@ -91,6 +99,8 @@ def torch_fields(net: Net, pts: torch.Tensor) -> dict[str, torch.Tensor]:
     p = net.problem
     if p.is_steady:
         return _steady_fields(net, pts)
+    if is_flow(p):
+        return _flow_fields(net, pts)
     pts = pts.detach().requires_grad_(True)
     out = net(pts)
     fields: dict[str, torch.Tensor] = {}
@@ -130,6 +140,96 @@ def _steady_fields(net: Net, pts: torch.Tensor) -> dict[str, torch.Tensor]:
     return fields
 
 
+def _flow_fields(net: Net, pts: torch.Tensor, *, second: bool = True) -> dict[str, torch.Tensor]:
+    """Navier-Stokes (inputs ``t, x, y``; outputs ``u, v, p``): values, first derivatives of
+    every output, second space derivatives of the velocity (unless ``second`` is False)."""
+    pts = pts.detach().requires_grad_(True)
+    out = net(pts)
+    fields: dict[str, torch.Tensor] = {}
+    for j, name in enumerate(net.problem.outputs):
+        c = out[:, j]
+        fields[name] = c
+        (g,) = torch.autograd.grad(c.sum(), pts, create_graph=True)
+        for i, a in enumerate(net.problem.axes):
+            fields[f"{name}_{a}"] = g[:, i]
+        if name == "p" or not second:
+            continue
+        for i, a in ((1, "x"), (2, "y")):
+            (g2,) = torch.autograd.grad(g[:, i].sum(), pts, create_graph=True)
+            fields[f"{name}_{a}{a}"] = g2[:, i]
+    return fields
+
+
+def _sample_flow(problem: FlowProblem, rng: np.random.Generator) -> dict[str, torch.Tensor]:
+    """Navier-Stokes: random collocation points in ``(t0, T) x box``, initial points, wall
+    points (``n_face`` per wall) with the exact velocity as target, and ``n_face`` random
+    low-face points per periodic axis (their partners on the high face are formed in the
+    loss)."""
+    cfg = problem.train
+    t0, t1 = problem.time
+    box = problem.space_box
+    (xl, xr), (yl, yr) = box["x"], box["y"]
+
+    def uniform(n: int) -> np.ndarray:
+        return np.column_stack(
+            [rng.uniform(t0, t1, n), rng.uniform(xl, xr, n), rng.uniform(yl, yr, n)]
+        )
+
+    out: dict[str, torch.Tensor] = {"col": torch.tensor(uniform(cfg.n_col))}
+    ic = uniform(cfg.n_ic)
+    ic[:, 0] = t0
+    out["ic"] = torch.tensor(ic)
+    out["ic_val"] = torch.tensor(problem.exact(*ic.T)[:, :2])
+    walls = []
+    for axis in problem.wall_axes:
+        k = 1 if axis == "x" else 2
+        for v in box[axis]:
+            face = uniform(problem.n_face)
+            face[:, k] = v
+            walls.append(face)
+    if walls:
+        bc = np.concatenate(walls)
+        out["bc"] = torch.tensor(bc)
+        out["bc_val"] = torch.tensor(problem.exact(*bc.T)[:, :2])
+    for axis in problem.periodic_axes:
+        k = 1 if axis == "x" else 2
+        lo = uniform(problem.n_face)
+        lo[:, k] = box[axis][0]
+        hi = lo.copy()
+        hi[:, k] = box[axis][1]
+        out[f"per_lo_{axis}"] = torch.tensor(lo)
+        out[f"per_hi_{axis}"] = torch.tensor(hi)
+    return out
+
+
+def _flow_losses(net: Net, pts: dict[str, torch.Tensor]) -> dict[str, torch.Tensor]:
+    """Mean squared momentum residuals + ``w_div`` x mean squared divergence, and
+    ``w_data`` x (initial + wall velocity mismatch) + ``w_per`` x periodicity mismatch
+    (values of ``u, v, p`` and the first space derivatives of ``u, v`` on each face pair)."""
+    p = net.problem
+    assert isinstance(p, FlowProblem)
+    mx, my, div = p.operator(_flow_fields(net, pts["col"]))
+    out = {"momentum": mx.pow(2).mean() + my.pow(2).mean(), "div": div.pow(2).mean()}
+    total = out["momentum"] + p.w_div * out["div"]
+    out["ic"] = (net(pts["ic"])[:, :2] - pts["ic_val"]).pow(2).mean()
+    data = out["ic"]
+    if "bc" in pts:
+        out["bc"] = (net(pts["bc"])[:, :2] - pts["bc_val"]).pow(2).mean()
+        data = data + out["bc"]
+    total = total + p.train.w_data * data
+    if p.periodic_axes:
+        per: Any = 0.0
+        names = ("u", "v", "p", "u_x", "u_y", "v_x", "v_y")
+        for axis in p.periodic_axes:
+            lo = _flow_fields(net, pts[f"per_lo_{axis}"], second=False)
+            hi = _flow_fields(net, pts[f"per_hi_{axis}"], second=False)
+            per = per + sum((hi[n] - lo[n]).pow(2).mean() for n in names)
+        out["periodic"] = per
+        total = total + p.w_per * per
+    out["total"] = total
+    return out
+
+
 def _sample_steady(problem: Problem, rng: np.random.Generator) -> dict[str, torch.Tensor]:
     """Steady problems: random interior points and ``n_bc`` random points on every face."""
     cfg = problem.train
@@ -153,6 +253,8 @@ def sample(problem: Problem, rng: np.random.Generator) -> dict[str, torch.Tensor
     """Uniformly random collocation, initial and boundary points with their target values."""
     if problem.is_steady:
         return _sample_steady(problem, rng)
+    if isinstance(problem, FlowProblem):
+        return _sample_flow(problem, rng)
     cfg = problem.train
     t0, t1 = problem.time
     out: dict[str, torch.Tensor] = {}
@@ -184,6 +286,8 @@ def sample(problem: Problem, rng: np.random.Generator) -> dict[str, torch.Tensor
 
 
 def losses(net: Net, pts: dict[str, torch.Tensor]) -> dict[str, torch.Tensor]:
+    if is_flow(net.problem):
+        return _flow_losses(net, pts)
     res = net.problem.operator(torch_fields(net, pts["col"]))
     pde = sum(r.pow(2).mean() for r in res)
     out = {"pde": pde}
@@ -275,6 +379,13 @@ def train(problem: Problem, *, verbose: bool = True) -> MLP:
         "train_seconds": round(elapsed, 1),
         "torch_version": torch.__version__,
     }
+    if isinstance(problem, FlowProblem):
+        meta |= {
+            "divergence_weight": problem.w_div,
+            "periodic_weight": problem.w_per if problem.periodic_axes else None,
+            "n_face": problem.n_face,
+            "n_initial": cfg.n_ic,
+        }
     model = to_mlp(net, meta)
     WEIGHTS.mkdir(parents=True, exist_ok=True)
     model.save_npz(weights_path(problem))

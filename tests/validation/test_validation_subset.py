@@ -4,7 +4,9 @@ The cached PINN of the heat problem with inhomogeneous Dirichlet data (exact sol
 separation of variables, Strauss, PDE: An Introduction, 2nd ed. 2008, ch. 4) is certified
 through the in-process app (build_app, temporary SQLite store, httpx ASGI transport) with the
 residuals of the network at the plan's Gauss-Legendre nodes; the bound must be above the true
-error computed from the exact solution by an independent 200 x 200 Gauss-Legendre rule.
+error computed from the exact solution by an independent 200 x 200 Gauss-Legendre rule. The
+same for one network of each further family, among them the 2-D Navier-Stokes network of the
+Taylor-Green vortex (velocity error only).
 """
 
 from __future__ import annotations
@@ -19,9 +21,9 @@ from boundsvc.api import build_app
 from boundsvc.settings import Settings
 from boundsvc.store import open_store
 from tests.inprocess import InProcessClient
-from validation.certify import certify_network
+from validation.certify import certify_flow, certify_network
 from validation.models import load_model, weights_path
-from validation.problems import heat_dirichlet
+from validation.problems import FlowProblem, heat_dirichlet, taylor_green
 from validation.problems.elliptic import poisson_square_mode, wall_profile
 from validation.problems.wave import travelling_pulse
 from validation.service import RawApi
@@ -94,3 +96,31 @@ def test_cached_elliptic_network_bound_above_true_error(api: RawApi, make: Any) 
     assert outcome.true_space is not None
     assert outcome.bound("l2_space") >= outcome.true_space  # type: ignore[operator]
     assert 0.0 < outcome.true_space < 1e-2
+
+
+def test_cached_navier_stokes_network_bound_above_true_error(api: RawApi) -> None:
+    # the 2-D Taylor-Green vortex (Taylor & Green, Proc. R. Soc. Lond. A 158 (1937) 499-521,
+    # the form of validation/closed_form/navier_stokes.py, from memory), periodic box; the
+    # velocity energy estimate of docs/theory/navier-stokes.md bounds the velocity error only.
+    # Coarser sup grid and true-error rules than the suite's, to stay fast (the velocity error
+    # is smooth: 20 x 48 x 48 and 100 x 100 Gauss-Legendre nodes integrate it to ~1e-10).
+    problem = taylor_green()
+    assert isinstance(problem, FlowProblem)
+    assert weights_path(problem).exists(), "cached weights are part of the repository"
+    outcome = certify_flow(
+        api, problem, load_model(problem), grid=(21, 51), n_st=(20, 48, 48), n_s=100
+    )
+    assert outcome.failures == []
+    assert outcome.status == "valid"
+    assert outcome.certificate["family"] == "incompressible-navier-stokes"
+    assert outcome.true_space_time is not None and outcome.true_final_time is not None
+    assert outcome.bound("l2_space_time") >= outcome.true_space_time  # type: ignore[operator]
+    assert outcome.bound("l2_final_time") >= outcome.true_final_time  # type: ignore[operator]
+    for b, e in zip(
+        outcome.certificate["time_profile"]["l2_error_bound"], outcome.true_profile, strict=True
+    ):
+        assert b is not None and e is not None and b >= e
+    # periodic faces: the mismatch terms of both axes are in the certificate
+    names = {t["name"] for t in outcome.certificate["terms"]}
+    assert {"periodicity mismatch along x", "periodicity mismatch along y"} <= names
+    assert 0.0 < outcome.true_space_time < 0.5

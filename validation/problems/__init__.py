@@ -6,6 +6,7 @@ from validation.problems._base import JetLib, Lift, NumpyLib, Problem, Reg, Trai
 from validation.problems.burgers import burgers_compressive, burgers_expansive, burgers_front
 from validation.problems.elliptic import poisson_square_mode, wall_profile
 from validation.problems.heat import advection_diffusion_mode, heat_dirichlet
+from validation.problems.navier_stokes import FlowProblem, is_flow, kovasznay, taylor_green
 from validation.problems.ode import oscillator, riccati_tan
 from validation.problems.semilinear import allen_cahn_front, fisher_kpp
 from validation.problems.wave import string_mode, travelling_pulse
@@ -40,6 +41,8 @@ def suite() -> list[Problem]:
         oscillator(),
         string_mode(),
         travelling_pulse(),
+        taylor_green(),
+        kovasznay(),
     ]
 
 
@@ -103,6 +106,7 @@ __all__ = [
     "TAN_T",
     "T_STAR",
     "WIDTHS",
+    "FlowProblem",
     "JetLib",
     "Lift",
     "NumpyLib",
@@ -114,9 +118,12 @@ __all__ = [
     "const",
     "hard_constrained",
     "heat_sweep_problem",
+    "is_flow",
+    "kovasznay",
     "steady",
     "steps_sweep",
     "suite",
     "tan_sweep",
+    "taylor_green",
     "width_sweep",
 ]
