@@ -6,7 +6,8 @@
   model quantities ``sup_abs_model_*`` from the network on a dense grid plus a 10 % margin
   (an ASSUMPTION: a grid maximum is not a certified supremum);
 * the true error from the exact solution by an independent fine Gauss-Legendre rule
-  (:func:`scipy.special.roots_legendre`: 200 x 200 nodes in space-time, 400 in x at each time).
+  (:func:`scipy.special.roots_legendre`: 200 x 200 nodes in space-time, 400 in x at each time;
+  Navier-Stokes: 40 x 80 x 80 in space-time and 200 x 200 in space at each time, velocity only).
 """
 
 from __future__ import annotations
@@ -17,10 +18,13 @@ from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
+import sympy as sp
 from scipy.special import roots_legendre
 
 from boundsvc.client.mlp import MLP, residual_fields
-from validation.problems import Problem, Reg
+from validation.closed_form._case import VectorFn
+from validation.closed_form._runner import _columns, _periodic
+from validation.problems import FlowProblem, Problem, Reg
 from validation.service import Api
 
 FloatArray = np.ndarray
@@ -121,19 +125,27 @@ def model_sups(
     for key, name in problem.model_keys.items():
         per_t = np.abs(fields[name]).reshape(len(t), -1).max(axis=1)
         exact = regularity.get(key.replace("model_", ""))
-        if time_varying and exact is not None and exact.time_varying:
-            c = max(0.0, float(np.max(MARGIN * per_t - exact.fn(t))))
-            c = float(f"{c * (1 + 1e-9) + 1e-12:.6e}")
-            values[key] = f"({exact.value}) + {c:.6e}"
-            notes[key] = (
-                f"ASSUMED: 1.1 x max over the {where} of |{name}| of the network at each time, "
-                f"enveloped by the exact bound + {c:.3g}"
-            )
-        else:
-            v = float(f"{MARGIN * float(per_t.max()) * (1 + 1e-9):.6e}")
-            values[key] = v
-            notes[key] = f"ASSUMED: 1.1 x max over the {where} of |{name}| of the network"
+        values[key], notes[key] = _envelope(
+            per_t, t, exact if time_varying else None, f"max over the {where} of |{name}|"
+        )
     return values, notes
+
+
+def _envelope(
+    per_t: FloatArray, t: FloatArray, exact: Reg | None, what: str
+) -> tuple[float | str, str]:
+    """The wire value of a model sup from its sampled maxima ``per_t`` at the grid times ``t``:
+    ``1.1 x`` the maximum, or (``exact`` time-varying) the envelope ``E(t) + c``."""
+    if exact is not None and exact.time_varying:
+        c = max(0.0, float(np.max(MARGIN * per_t - exact.fn(t))))
+        c = float(f"{c * (1 + 1e-9) + 1e-12:.6e}")
+        return (
+            f"({exact.value}) + {c:.6e}",
+            f"ASSUMED: 1.1 x {what} of the network at each time, enveloped by the exact "
+            f"bound + {c:.3g}",
+        )
+    v = float(f"{MARGIN * float(per_t.max()) * (1 + 1e-9):.6e}")
+    return v, f"ASSUMED: 1.1 x {what} of the network"
 
 
 def _component(plan: Mapping[str, Any], name: str) -> dict[str, Any] | None:
@@ -273,21 +285,30 @@ def certify_network(
     t_limit: float = math.inf,
     expect_valid: bool = True,
     lifting: bool = True,
+    panels: Mapping[str, int] | None = None,
 ) -> Outcome:
     """Problem -> plan -> certificate for ``model``, then the comparison with the truth.
 
     ``lifting``: where the family offers the boundary lifting (``boundary_t`` among the
     problem's optional components), ask the plan for it and send ``d/dt`` of the boundary
     residual; the service reports the smaller of the lifted and the flux estimate.
+    ``panels``: Gauss-Legendre panels per axis (default: the problem's ``panels``).
     """
     if problem.is_steady:
         return certify_steady(api, problem, model, weights_key=weights_key)
+    if isinstance(problem, FlowProblem):
+        return certify_flow(api, problem, model, weights_key=weights_key)
     info = api.problem(problem.problem)
     failures: list[str] = []
     if info["family"] != problem.family:
         failures.append(f"classified as {info['family']}, expected {problem.family}")
     optional = [LIFTING] if lifting and LIFTING in info.get("optional_components", []) else []
-    plan = api.plan(info["problem_id"], problem.points, optional)
+    plan = api.plan(
+        info["problem_id"],
+        problem.points,
+        optional,
+        problem.panels if panels is None else panels,
+    )
     reg = problem.regularity if variant == "default" else problem.variants[variant]
     sups, notes = model_sups(
         problem, model, reg, time_varying=variant != "constant sups", t_limit=t_limit
@@ -311,20 +332,7 @@ def certify_network(
     out = Outcome(
         problem, variant, wkey, cert, regularity, notes, st, ft, prof, dict(model.meta), failures
     )
-    status = cert["status"]
-    if status == "invalid-hypotheses":
-        failures.append(f"invalid-hypotheses: {cert.get('warnings')}")
-    if expect_valid and status != "valid":
-        failures.append(f"status {status}, expected valid")
-    for which, truth in (("l2_space_time", st), ("l2_final_time", ft)):
-        b = out.bound(which)
-        if b is not None and truth is not None and b < truth:
-            failures.append(f"BOUND BELOW TRUE ERROR: {which} bound {b:.6g} < true {truth:.6g}")
-    for tk, bk, ek in zip(
-        cert["time_profile"]["t"], cert["time_profile"]["l2_error_bound"], prof, strict=True
-    ):
-        if bk is not None and ek is not None and bk < ek:
-            failures.append(f"BOUND BELOW TRUE ERROR at t = {tk:.6g}: {bk:.6g} < {ek:.6g}")
+    _check(out, expect_valid=expect_valid)
     return out
 
 
@@ -421,3 +429,200 @@ def certify_steady(
     elif b < truth:
         failures.append(f"BOUND BELOW TRUE ERROR: l2_space bound {b:.6g} < true {truth:.6g}")
     return out
+
+
+# -- Navier-Stokes (2-D: inputs t, x, y; outputs u, v, p) -------------------------------------
+#: dense grid of the model sups: times x points per space axis (faces included)
+NS_GRID_T, NS_GRID_S = 41, 101
+#: the independent true-error rule: t x x x y over space-time, per axis in space at each time
+NS_ST = (40, 80, 80)
+NS_S = 200
+_NS_DERIVS = {"periodic": ("u", "v", "p"), "periodic_x": ("u_x", "v_x", "p_x")}
+_NS_DERIVS["periodic_y"] = ("u_y", "v_y", "p_y")
+
+
+class _NetFn(VectorFn):
+    """The network's fields ``names`` as a :class:`VectorFn` (``fn(t, x, y) -> (n, m)``), so
+    the registry's periodic-face layout (:func:`validation.closed_form._runner._periodic`) is
+    reused for the network."""
+
+    def __init__(self, problem: Problem, model: MLP, names: Sequence[str]) -> None:
+        self.exprs = tuple(sp.Symbol(n) for n in names)
+        self.names = tuple(names)
+        self.problem, self.model = problem, model
+
+    def __call__(self, *cols: FloatArray) -> FloatArray:
+        pts = np.column_stack(cols)
+        p = self.problem
+        f = residual_fields(self.model, pts, p.axes, self.names, outputs=p.outputs)
+        return np.column_stack([f[n] for n in self.names])
+
+
+def _flow_space(problem: FlowProblem, n: int) -> list[FloatArray]:
+    return [np.linspace(lo, hi, n) for lo, hi in problem.space_box.values()]
+
+
+def flow_model_sups(
+    problem: FlowProblem,
+    model: MLP,
+    regularity: Mapping[str, Reg],
+    *,
+    n_t: int = NS_GRID_T,
+    n_s: int = NS_GRID_S,
+) -> tuple[dict[str, float | str], dict[str, str]]:
+    """``sup_abs_model_*`` of a flow network on an ``n_t x n_s x n_s`` grid (faces included),
+    times 1.1 and enveloped by the exact bound where that is time-varying (an ASSUMPTION, as
+    :func:`model_sups`). The pressure is sent for the normalisation ``p - m(t)``, ``m(t)`` the
+    midpoint of the sampled range at time ``t`` (docs/theory/navier-stokes.md allows any
+    additive normalisation of each pressure): its sup is the half-range. The gradient sups are
+    over the whole box, which dominates the sups over the walls or periodic faces needed."""
+    t0, t1 = problem.time
+    t = np.linspace(t0, t1, n_t)
+    xs, ys = _flow_space(problem, n_s)
+    tt, xx, yy = np.meshgrid(t, xs, ys, indexing="ij")
+    pts = np.column_stack([tt.ravel(), xx.ravel(), yy.ravel()])
+    names = sorted(set(problem.model_keys.values()))
+    fields = residual_fields(model, pts, problem.axes, names, outputs=problem.outputs)
+    where = f"{n_t} x {n_s} x {n_s} grid"
+    values: dict[str, float | str] = {}
+    notes: dict[str, str] = {}
+    for key, name in problem.model_keys.items():
+        per = fields[name].reshape(n_t, -1)
+        if name == "p":
+            per_t = (per.max(axis=1) - per.min(axis=1)) / 2
+            what = f"half the range over the {where} of p (normalisation p - midrange(t))"
+        else:
+            per_t = np.abs(per).max(axis=1)
+            what = f"max over the {where} of |{name}|"
+        values[key], notes[key] = _envelope(
+            per_t, t, regularity.get(key.replace("model_", "")), what
+        )
+    return values, notes
+
+
+def flow_residuals(
+    problem: FlowProblem, model: MLP, plan: Mapping[str, Any]
+) -> dict[str, FloatArray]:
+    """The residual rows of docs/api.md "Navier-Stokes layout": interior in equation order,
+    initial/boundary ``u_model - data`` per unknown (pressure column 0), periodic mismatches
+    of the values (pressure included) and of ``d/d axis`` (``periodic_<axis>``)."""
+    case = problem.case
+    assert case is not None
+    t0 = problem.time[0]
+    out: dict[str, FloatArray] = {}
+    for comp in plan["components"]:
+        name = comp["name"]
+        if name == "interior":
+            pts = _as_model_points(problem, comp)
+            f = residual_fields(model, pts, problem.axes, problem.fields, outputs=problem.outputs)
+            out[name] = np.column_stack(problem.operator(f))
+        elif name in ("initial", "boundary"):
+            pts = _as_model_points(problem, comp)
+            r = _values(problem, model, pts) - problem.exact(*pts.T)
+            r[:, 2] = 0.0  # the pressure column is not used (docs/api.md)
+            out[name] = r
+        elif name in _NS_DERIVS:
+            raw = np.asarray(comp["points"], dtype=np.float64).reshape(len(comp["weights"]), -1)
+            cols = _columns(case, comp["axes"], raw, t0)
+            out[name] = _periodic(case, _NetFn(problem, model, _NS_DERIVS[name]), cols)
+        else:
+            raise NotImplementedError(f"{problem.key}: residual component {name!r}")
+    return out
+
+
+def flow_true_errors(
+    problem: FlowProblem,
+    model: MLP,
+    profile_t: Sequence[float],
+    *,
+    n_st: tuple[int, int, int] = NS_ST,
+    n_s: int = NS_S,
+) -> tuple[float, float, list[float | None]]:
+    """The velocity error ``||(u_model - u, v_model - v)||`` by independent tensor
+    Gauss-Legendre rules (:func:`scipy.special.roots_legendre`): ``n_st`` nodes in
+    ``t x x x y`` over space-time, ``n_s x n_s`` in space at the final time and at every profile
+    time. The pressure error is not compared (the family does not bound it)."""
+    box = list(problem.space_box.values())
+
+    def err2(pts: FloatArray) -> FloatArray:
+        e = _values(problem, model, pts)[:, :2] - problem.exact(*pts.T)[:, :2]
+        return np.asarray(np.sum(e * e, axis=1))
+
+    (xs, wx), (ys, wy) = _gl(n_s, *box[0]), _gl(n_s, *box[1])
+    gx, gy = np.meshgrid(xs, ys, indexing="ij")
+    wxy = np.outer(wx, wy).ravel()
+
+    def at(tk: float) -> float:
+        pts = np.column_stack([np.full(gx.size, tk), gx.ravel(), gy.ravel()])
+        return float(math.sqrt(np.dot(wxy, err2(pts))))
+
+    ts, wt = _gl(n_st[0], *problem.time)
+    (xs2, wx2), (ys2, wy2) = _gl(n_st[1], *box[0]), _gl(n_st[2], *box[1])
+    g = np.meshgrid(ts, xs2, ys2, indexing="ij")
+    w = np.einsum("i,j,k->ijk", wt, wx2, wy2).ravel()
+    st = float(math.sqrt(np.dot(w, err2(np.column_stack([a.ravel() for a in g])))))
+    return st, at(problem.time[1]), [at(float(tk)) for tk in profile_t]
+
+
+def certify_flow(
+    api: Api,
+    problem: FlowProblem,
+    model: MLP,
+    *,
+    weights_key: str | None = None,
+    grid: tuple[int, int] = (NS_GRID_T, NS_GRID_S),
+    n_st: tuple[int, int, int] = NS_ST,
+    n_s: int = NS_S,
+) -> Outcome:
+    """The Navier-Stokes path of :func:`certify_network`: problem -> plan (the problem's
+    required components) -> residuals from the network -> certificate, then the velocity error
+    by the independent rule; the same failure checks."""
+    info = api.problem(problem.problem)
+    failures: list[str] = []
+    if info["family"] != problem.family:
+        failures.append(f"classified as {info['family']}, expected {problem.family}")
+    plan = api.plan(info["problem_id"], problem.points, [])
+    reg = problem.regularity
+    sups, notes = flow_model_sups(problem, model, reg, n_t=grid[0], n_s=grid[1])
+    regularity: dict[str, float | str] = {k: r.value for k, r in reg.items()} | sups
+    notes = {k: r.note for k, r in reg.items()} | notes
+    res = flow_residuals(problem, model, plan)
+    wkey = weights_key or problem.key
+    cert = api.certify(
+        info["problem_id"],
+        plan["plan_id"],
+        regularity,
+        res,
+        {"name": f"validation/{wkey}", "version": "1", "metadata": {"variant": "default"}},
+    )
+    st, ft, prof = flow_true_errors(problem, model, cert["time_profile"]["t"], n_st=n_st, n_s=n_s)
+    out = Outcome(
+        problem, "default", wkey, cert, regularity, notes, st, ft, prof, dict(model.meta), failures
+    )
+    _check(out, expect_valid=True)
+    return out
+
+
+def _check(out: Outcome, *, expect_valid: bool) -> None:
+    """The failures of a time-dependent certificate against its true errors (appended)."""
+    cert, failures = out.certificate, out.failures
+    status = cert["status"]
+    if status == "invalid-hypotheses":
+        failures.append(f"invalid-hypotheses: {cert.get('warnings')}")
+    if expect_valid and status != "valid":
+        failures.append(f"status {status}, expected valid")
+    for which, truth in (
+        ("l2_space_time", out.true_space_time),
+        ("l2_final_time", out.true_final_time),
+    ):
+        b = out.bound(which)
+        if b is not None and truth is not None and b < truth:
+            failures.append(f"BOUND BELOW TRUE ERROR: {which} bound {b:.6g} < true {truth:.6g}")
+    for tk, bk, ek in zip(
+        cert["time_profile"]["t"],
+        cert["time_profile"]["l2_error_bound"],
+        out.true_profile,
+        strict=True,
+    ):
+        if bk is not None and ek is not None and bk < ek:
+            failures.append(f"BOUND BELOW TRUE ERROR at t = {tk:.6g}: {bk:.6g} < {ek:.6g}")

@@ -1,7 +1,7 @@
 """Run the validation suite against a running boundsvc and write ``docs/validation.md``.
 
     .venv/bin/python -m validation.run             # cached networks, fresh service, report
-    .venv/bin/python -m validation.run --retrain   # retrain every network first (~15 min CPU)
+    .venv/bin/python -m validation.run --retrain   # retrain every network first (~25 min CPU)
     .venv/bin/python -m validation.run --url http://127.0.0.1:8000   # use a running service
 
 Exit status 1 (and a loud message) if any bound is below the true error, a certificate has
@@ -52,10 +52,13 @@ class Results:
     lifting: list[tuple[Outcome, Outcome]] = field(default_factory=list)
     # steady problems (linear elliptic): only ``l2_space`` is bounded
     steady: list[Outcome] = field(default_factory=list)
+    # (one Gauss-Legendre panel, suite certificate) for the problems whose plan has panels
+    panels: list[tuple[Outcome, Outcome]] = field(default_factory=list)
 
     def all(self) -> list[Outcome]:
         out = [*self.suite, *self.steady, *self.variants, *(h for _, h in self.hard)]
         out += [before for before, _ in self.lifting]
+        out += [before for before, _ in self.panels]
         for s in self.sweeps:
             out += [*s.outcomes, *s.extra]
             out += [o for _, o in s.beyond if isinstance(o, Outcome)]
@@ -179,6 +182,13 @@ def run_all(api: Api, service: str) -> Results:
             before = _one(api, o.problem, lifting=False)
             before.variant = "no lifting"
             lifting.append((before, o))
+    _log("one Gauss-Legendre panel instead of the problem's panels (ODE smoothing width):")
+    panels = []
+    for o in suite:
+        if o.problem.panels:
+            before = _one(api, o.problem, panels={})
+            before.variant = "one panel"
+            panels.append((before, o))
     _log("hard-constrained boundary conditions:")
     soft = {o.problem.key: o for o in suite}
     hard = [(soft[k], _one(api, hp)) for k, hp in vp.hard_constrained().items()]
@@ -233,7 +243,7 @@ def run_all(api: Api, service: str) -> Results:
         math.pi / 2,
     )
     sweeps += [bsweep, tsweep]
-    return Results(suite, variants, hard, sweeps, service, lifting, steady)
+    return Results(suite, variants, hard, sweeps, service, lifting, steady, panels)
 
 
 def main(argv: list[str] | None = None) -> int:

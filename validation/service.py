@@ -31,7 +31,11 @@ class ServiceError(RuntimeError):
 class Api(Protocol):
     def problem(self, problem: Mapping[str, Any]) -> dict[str, Any]: ...
     def plan(
-        self, problem_id: str, points: Mapping[str, int], optional: Sequence[str] = ()
+        self,
+        problem_id: str,
+        points: Mapping[str, int],
+        optional: Sequence[str] = (),
+        panels: Mapping[str, int] | None = None,
     ) -> dict[str, Any]: ...
     def certify(
         self,
@@ -67,13 +71,19 @@ class RawApi:
         return self._post("/v1/problems", {"problem": problem}, (200, 201))
 
     def plan(
-        self, problem_id: str, points: Mapping[str, int], optional: Sequence[str] = ()
+        self,
+        problem_id: str,
+        points: Mapping[str, int],
+        optional: Sequence[str] = (),
+        panels: Mapping[str, int] | None = None,
     ) -> dict[str, Any]:
         body: dict[str, Any] = {
             "problem_id": problem_id,
             "rule": "gauss-legendre",
             "points": dict(points),
         }
+        if panels:
+            body["panels"] = dict(panels)
         if optional:
             body["optional_components"] = list(optional)
         return self._post("/v1/plans", body, (200, 201))
@@ -123,12 +133,18 @@ class ClientApi:
         return out
 
     def plan(
-        self, problem_id: str, points: Mapping[str, int], optional: Sequence[str] = ()
+        self,
+        problem_id: str,
+        points: Mapping[str, int],
+        optional: Sequence[str] = (),
+        panels: Mapping[str, int] | None = None,
     ) -> dict[str, Any]:
         if optional:  # the client's plan() has no optional components: plain JSON
-            return self.raw.plan(problem_id, points, optional)
+            return self.raw.plan(problem_id, points, optional, panels)
         out: dict[str, Any] = (
-            self.client.plan(problem_id, points=dict(points)).to_response().model_dump(mode="json")
+            self.client.plan(problem_id, points=dict(points), panels=panels)
+            .to_response()
+            .model_dump(mode="json")
         )
         return out
 

@@ -110,6 +110,9 @@ class Problem:
     axes: tuple[str, ...] = ("t", "x")
     outputs: tuple[str, ...] = ("u",)
     points: dict[str, int] = field(default_factory=lambda: {"t": 32, "x": 32})
+    #: composite Gauss-Legendre panels per axis (``{}``: one panel); ODE networks use several,
+    #: so the smoothing of ``|r|`` stays local (docs/theory/ode-system.md step 14)
+    panels: dict[str, int] = field(default_factory=dict)
     train: TrainConfig = field(default_factory=TrainConfig)
     variants: dict[str, dict[str, Reg]] = field(default_factory=dict)
     lift: Lift | None = None

@@ -50,6 +50,7 @@ def riccati_tan(t_end: float = 1.2, *, key: str | None = None) -> Problem:
         axes=("t",),
         outputs=("y",),
         points={"t": 64},
+        panels={"t": 8},
         train=TrainConfig(
             hidden=(20, 20),
             adam_steps=3000,
@@ -86,5 +87,6 @@ def oscillator() -> Problem:
         axes=("t",),
         outputs=("y1", "y2"),
         points={"t": 64},
+        panels={"t": 8},
         train=TrainConfig(hidden=(20, 20), adam_steps=3000, lbfgs_iters=1000, n_col=400),
     )
