@@ -4,7 +4,8 @@ Reference: ``scipy.integrate.solve_ivp`` of the linear ODE ``Y' = a(t) Y + g(t)`
 case of Gronwall's differential inequality, whose solution is exactly the variation-of-constants
 bound: Gronwall, Ann. Math. 20 (1919); Evans, PDE, 2nd ed. 2010, App. B.2 (j)) and
 ``scipy.integrate.quad`` of the rate. The forcings are polynomials of degree < nodes per panel,
-so the panel interpolant the service uses is exact and the bound must equal the ODE solution.
+so the panel interpolant the service uses is exact between the nodes and the bound must equal
+the ODE solution up to the guard on the panels' end segments (never below it).
 """
 
 from __future__ import annotations
@@ -46,9 +47,14 @@ def reference(rate, forcing, y0: float, times: np.ndarray) -> np.ndarray:  # typ
 
 def assert_matches(log_y: np.ndarray, exact: np.ndarray) -> None:
     bound = np.exp(log_y)
-    # never below the exact solution (beyond the reference's own tolerance), and tight
+    # never below the exact solution (beyond the reference's own tolerance), and tight: the
+    # panel polynomial is exact for these forcings except on the end segments of each panel
+    # (edge to first node, last node to edge), where it is raised to the nearest node's value
+    # (test_end_segments_are_guarded_against_extrapolation); that costs < 2e-4 relative once
+    # the bound has grown to a tenth of its largest value
     assert np.all(bound >= exact * (1 - 1e-9)), np.min(bound / exact)
-    np.testing.assert_allclose(bound, exact, rtol=1e-8)
+    grown = exact >= 0.1 * np.max(exact)
+    np.testing.assert_allclose(bound[grown], exact[grown], rtol=2e-4)
 
 
 def test_constant_rate_matches_closed_form_and_ode() -> None:
@@ -122,7 +128,11 @@ def test_forcing_with_zeros() -> None:
             for tk in prop.times[late]
         ]
     )
-    assert_matches(prop.log_y[late], exact)
+    # the forcing rises from 0 at a panel edge: the end-segment guard (value of the first node
+    # on [edge, first node]) costs most here, about 1.4 % once the bound has grown
+    bound = np.exp(prop.log_y[late])
+    assert np.all(bound >= exact * (1 - 1e-9))
+    np.testing.assert_allclose(bound[-1], exact[-1], rtol=2e-2)
     assert prop.shares["h"][-1] == 0.0 and prop.shares["g"][-1] == pytest.approx(1.0)
     # everything zero: the bound is zero everywhere, the initial value carries the share
     zero = propagate(grid, Rate(constant=3.0), 0.0, {"g": np.zeros(grid.size)})
@@ -141,3 +151,24 @@ def test_overflow_is_vacuous_not_inf() -> None:
         prop.log_y[: finite.size],
         1.0 / 1500 * (1501 * np.exp(1500 * prop.times[: finite.size]) - 1),
     )
+
+
+@pytest.mark.parametrize("seed", range(6))
+def test_end_segments_are_guarded_against_extrapolation(seed: int) -> None:
+    """Between ``t0`` and the first node (and the last node and ``T``) the panel polynomial
+    extrapolates; there the forcing is at least its value at the nearest node. With rate 0 and
+    initial value 0 the bound at the first node is therefore at least ``(t_1 - t0) g(t_1)``
+    (by the mean-value property of the integral), for any positive node values -- including
+    rough ones whose polynomial dives below zero before ``t_1`` (before the guard: bounds
+    below the true error at the first node, found by tools/probe_soundness.py)."""
+    rng = np.random.default_rng(seed)
+    grid = gauss_grid(0.0, 1.0, 1, 9)
+    g = rng.uniform(0.1, 1.0, grid.size)
+    prop = propagate(grid, Rate(constant=0.0), 0.0, {"g": g})
+    first = int(np.searchsorted(prop.times, grid.nodes[0]))
+    assert prop.times[first] == pytest.approx(grid.nodes[0])
+    y_first = math.exp(prop.log_y[first])
+    assert y_first >= (grid.nodes[0] - grid.t0) * g[0] * (1 - 1e-9)
+    y_last_node = math.exp(prop.log_y[first + grid.size - 1])
+    y_end = math.exp(prop.log_y[-1])
+    assert y_end - y_last_node >= (grid.t_end - grid.nodes[-1]) * g[-1] * (1 - 1e-9)
