@@ -6,7 +6,7 @@ BIN    := $(VENV)/bin
 PY     := $(BIN)/python
 export OPENBLAS_NUM_THREADS ?= 1
 
-.PHONY: demo test lint typecheck bench validate screenshots clean fuzz soak
+.PHONY: demo test lint typecheck bench validate screenshots clean fuzz soak probe
 
 $(BIN)/activate:
 	$(PYTHON) -m venv $(VENV)
@@ -67,6 +67,13 @@ soak: $(VENV)/.installed-all
 		$(PY) -m pytest -q tests/hardening tests/expr/test_hostile.py \
 		tests/expr/test_properties.py tests/store/test_concurrency.py tests/test_sandbox.py
 	$(PY) tools/soak.py $(SOAK_ARGS)
+
+# Randomized soundness probe through the HTTP contract (bound >= true error, no 5xx);
+# findings as JSON lines in PROBE_OUT. See docs/reliability.md.
+PROBE_ARGS ?= --seed 11 --cases 300
+PROBE_OUT ?= /tmp/boundsvc-probe.jsonl
+probe: $(VENV)/.installed-all
+	$(PY) tools/probe_soundness.py $(PROBE_ARGS) --out $(PROBE_OUT)
 
 clean:
 	rm -rf $(VENV) .pytest_cache .mypy_cache .ruff_cache
