@@ -428,6 +428,21 @@ def interpolant_rate(grid: TimeGrid, values: FloatArray) -> FloatArray:
     return out
 
 
+def rate_mismatch(grid: TimeGrid, r: FloatArray, r_t: FloatArray) -> str | None:
+    """Why ``r_t`` (``boundary_t``) is not the time derivative of the interpolated boundary
+    residual ``r`` (beyond LIFTING_RATE_TOLERANCE of their magnitude), or None if it is."""
+    check = interpolant_rate(grid, r)
+    scale = max(float(np.max(np.abs(check))), float(np.max(np.abs(r_t))))
+    gap = float(np.max(np.abs(check - r_t)))
+    if gap > LIFTING_RATE_TOLERANCE * scale + 1e-300:
+        return (
+            f"{LIFTING_COMPONENT} differs from the time derivative of the interpolated "
+            f"boundary residual by {gap:.3g} (largest magnitude {scale:.3g}); it must be "
+            "d/dt (u_model - g) at the boundary points"
+        )
+    return None
+
+
 # ---------------------------------------------------------------------------- the family
 class AdvectionDiffusionFamily(Family):
     """The linear advection-diffusion-reaction family (constant or variable coefficients)."""
@@ -1107,15 +1122,9 @@ class ClassifiedADR(Classified):
         length = self.problem.domain.length(axis)
         r = np.stack([traces.low, traces.high], axis=1)
         r_t = np.stack([traces.low_t, traces.high_t], axis=1)
-        check = interpolant_rate(grid, r)
-        scale = max(float(np.max(np.abs(check))), float(np.max(np.abs(r_t))))
-        gap = float(np.max(np.abs(check - r_t)))
-        if gap > LIFTING_RATE_TOLERANCE * scale + 1e-300:
-            return (
-                f"{LIFTING_COMPONENT} differs from the time derivative of the interpolated "
-                f"boundary residual by {gap:.3g} (largest magnitude {scale:.3g}); it must be "
-                "d/dt (u_model - g) at the boundary points"
-            )
+        refused = rate_mismatch(grid, r, r_t)
+        if refused is not None:
+            return refused
         exact_axes = (axis,) if self.k_inf[axis] > 0 else ()
         rate, edges, values, treatments, q = self._rate(grid, exact_axes)
         # L2: ||B r||, ||d_t B r|| at the time nodes (closed forms, exact)

@@ -65,6 +65,7 @@ from boundsvc.families.advection_diffusion import (
     interpolant_rate,
     lifting_norm,
     offending_term,
+    rate_mismatch,
 )
 from boundsvc.gronwall import Rate
 from boundsvc.quadrature import (
@@ -608,16 +609,11 @@ class ClassifiedWave(Classified):
         # W1: r_t must be the derivative of r (as for the parabolic lifting), and r_tt comes
         # from the time interpolant of r_t, cross-checked against the second derivative of
         # the interpolant of r; their difference is added to ||L B r|| (W3)
-        check = interpolant_rate(grid, r)
-        scale = max(float(np.max(np.abs(check))), float(np.max(np.abs(r_t))))
-        gap = float(np.max(np.abs(check - r_t)))
-        if gap > LIFTING_RATE_TOLERANCE * scale + 1e-300:
-            return (
-                f"boundary_t differs from the time derivative of the interpolated boundary "
-                f"residual by {gap:.3g} (largest magnitude {scale:.3g})"
-            )
+        refused = rate_mismatch(grid, r, r_t)
+        if refused is not None:
+            return refused
         r_tt = interpolant_rate(grid, r_t)
-        r_tt_other = interpolant_rate(grid, check)
+        r_tt_other = interpolant_rate(grid, interpolant_rate(grid, r))
         spread = np.abs(r_tt - r_tt_other)
         scale2 = max(float(np.max(np.abs(r_tt))), float(np.max(np.abs(r_tt_other))))
         if float(np.max(spread)) > LIFTING_RATE_TOLERANCE * scale2 + 1e-300:
