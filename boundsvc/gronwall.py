@@ -357,6 +357,8 @@ def _advance(
     whole = float(rate.integral(np.array([p]), np.array([q]))[0])
     if not math.isfinite(whole):
         raise RateTooStiff("the rate is not finite on the interval")
+    if abs(whole) > _STEP_EXPONENT * budget[0]:  # also guards the int conversion below
+        raise RateTooStiff("the rate needs more sub-intervals than the budget allows")
     pieces = max(1, math.ceil(abs(whole) / _STEP_EXPONENT))
     budget[0] -= pieces
     if budget[0] < 0:
@@ -404,7 +406,13 @@ def _batched_steps(
         return None
     finite = np.isfinite(whole)
     usable = n_steps if finite.all() else int(np.argmin(finite))
-    pieces = np.maximum(1, np.ceil(np.abs(whole[:usable]) / _STEP_EXPONENT)).astype(np.int64)
+    # counted in float first: a huge rate integral (regularity values like 1e25) would
+    # overflow the int64 cast; anything beyond the budget ends the batch there
+    counts = np.maximum(1.0, np.ceil(np.abs(whole[:usable]) / _STEP_EXPONENT))
+    too_many = np.flatnonzero(np.cumsum(counts) > _MAX_SUBINTERVALS)
+    if too_many.size:
+        usable = int(too_many[0])
+    pieces = counts[:usable].astype(np.int64)
     over = np.flatnonzero(np.cumsum(pieces) > _MAX_SUBINTERVALS)
     if over.size:
         usable = int(over[0])

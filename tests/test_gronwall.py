@@ -172,3 +172,12 @@ def test_end_segments_are_guarded_against_extrapolation(seed: int) -> None:
     y_last_node = math.exp(prop.log_y[first + grid.size - 1])
     y_end = math.exp(prop.log_y[-1])
     assert y_end - y_last_node >= (grid.t_end - grid.nodes[-1]) * g[-1] * (1 - 1e-9)
+
+
+def test_huge_rate_ends_the_bound_instead_of_raising() -> None:
+    """A rate integral far beyond the float range of the sub-interval count (true but huge
+    regularity values, e.g. sup_abs_y = 1e25 for y' = y^2) must end the bound (vacuous), not
+    overflow the int64 piece count (an HTTP 500 found by tools/probe_soundness.py)."""
+    grid = gauss_grid(0.0, 1.0, 1, 4)
+    prop = propagate(grid, Rate(constant=2e25), 1e-4, {"g": np.full(grid.size, 1e-4)})
+    assert np.isnan(prop.log_y[-1]) or prop.log_y[-1] == math.inf or prop.ended_at is not None
