@@ -428,6 +428,26 @@ def interpolant_rate(grid: TimeGrid, values: FloatArray) -> FloatArray:
     return out
 
 
+def lifting_addition(grid: TimeGrid, length: float, r: FloatArray) -> NormAddition:
+    """``||B r(t)||`` at the Gronwall output times and over space-time, for the triangle
+    inequality ``||e|| <= ||v|| + ||B r||`` of a 1-D boundary lifting (``r``: rows = time
+    nodes, columns = the ends ``a, b``)."""
+    b_out = at_output_times(grid, r)
+    b_nodes = lifting_norm(length, r[:, 0], r[:, 1])
+    return NormAddition(
+        profile=lifting_norm(length, b_out[:, 0], b_out[:, 1]),
+        space_time=math.sqrt(float(np.dot(grid.weights, np.square(b_nodes)))),
+        info=SourceInfo(
+            "boundary lifting",
+            "||B r(t)||",
+            "sqrt(L/3 (r_a(t)^2 + r_a(t) r_b(t) + r_b(t)^2))",
+            "heuristic",
+            "closed form (exact) at the time nodes; between them the time interpolant "
+            "of the boundary residual, and the time quadrature for the space-time norm",
+        ),
+    )
+
+
 def rate_mismatch(grid: TimeGrid, r: FloatArray, r_t: FloatArray) -> str | None:
     """Why ``r_t`` (``boundary_t``) is not the time derivative of the interpolated boundary
     residual ``r`` (beyond LIFTING_RATE_TOLERANCE of their magnitude), or None if it is."""
@@ -1149,9 +1169,8 @@ class ClassifiedADR(Classified):
                 f"||L B r|| <= ||d_t B r|| + sup|a| |r_b - r_a|/sqrt(L) + sup|c| ||B r||, "
                 f"certified sup|a| = {a_sup:.6g}, sup|c| = {c_sup:.6g}"
             )
-        b_out = at_output_times(grid, r)
-        b_profile = lifting_norm(length, b_out[:, 0], b_out[:, 1])
-        b_space_time = math.sqrt(float(np.dot(grid.weights, np.square(b_norm))))
+        addition = lifting_addition(grid, length, r)
+        b_profile = addition.profile
         # L5-L6: v(t0) = R_0 - B r(t0), L v = R - L B r
         initial = (math.sqrt(max(y0, 0.0)) + float(b_profile[0])) ** 2
         forcing_v = np.square(np.sqrt(np.maximum(residual, 0.0)) + lb_norm)
@@ -1191,18 +1210,7 @@ class ClassifiedADR(Classified):
             rate_rigor="proven",
             inputs={"rate_max": float(np.max(values)), "rate_min": float(np.min(values))},
             lifting_residual=lb_norm,
-            norm_addition=NormAddition(
-                profile=b_profile,
-                space_time=b_space_time,
-                info=SourceInfo(
-                    "boundary lifting",
-                    "||B r(t)||",
-                    "sqrt(L/3 (r_a(t)^2 + r_a(t) r_b(t) + r_b(t)^2))",
-                    "heuristic",
-                    "closed form (exact) at the time nodes; between them the time interpolant "
-                    "of the boundary residual, and the time quadrature for the space-time norm",
-                ),
-            ),
+            norm_addition=addition,
             label="boundary lifting",
         )
 

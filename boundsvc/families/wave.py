@@ -44,7 +44,6 @@ from boundsvc.families._base import (
     EnergyInequality,
     Family,
     FloatArray,
-    NormAddition,
     Requirement,
     SourceInfo,
 )
@@ -63,6 +62,7 @@ from boundsvc.families.advection_diffusion import (
     at_output_times,
     face_traces,
     interpolant_rate,
+    lifting_addition,
     lifting_norm,
     offending_term,
     rate_mismatch,
@@ -516,10 +516,7 @@ class ClassifiedWave(Classified):
         initial_energy = self._initial_energy(plan, res, mu, warnings)
         residual = slice_integrals(interior, r_sq, n_t) / mu
         scaled = {k: v / mu for k, v in forcing.items()}
-        constants = [c.with_value(None) for c in self.constants()]
-        constants[0] = constants[0].with_value(initial_energy, "heuristic")
-        constants[1] = constants[1].with_value(rate, "proven")
-        constants[2] = constants[2].with_value(initial_energy * mu, "heuristic")
+        constants = self._energy_constants(initial_energy, rate, mu)
         constants.append(
             ConstantInfo(
                 name="energy weight",
@@ -640,14 +637,8 @@ class ClassifiedWave(Classified):
         initial_v = (math.sqrt(max(initial_energy, 0.0)) + math.sqrt(lift_energy)) ** 2
         rate = energy_rate(mu, self.b, self.m, self.transport)
         # W7: ||w|| <= ||v|| + ||B r||
-        b_out = at_output_times(grid, r)
-        b_profile = lifting_norm(length, b_out[:, 0], b_out[:, 1])
         b_nodes = lifting_norm(length, r[:, 0], r[:, 1])
-        b_space_time = math.sqrt(float(np.dot(grid.weights, np.square(b_nodes))))
-        constants = [c.with_value(None) for c in self.constants()]
-        constants[0] = constants[0].with_value(initial_v, "heuristic")
-        constants[1] = constants[1].with_value(rate, "proven")
-        constants[2] = constants[2].with_value(initial_v * mu, "heuristic")
+        constants = self._energy_constants(initial_v, rate, mu)
         constants.append(
             ConstantInfo(
                 name="boundary lifting",
@@ -702,20 +693,18 @@ class ClassifiedWave(Classified):
             failed_hypotheses=list(failed),
             rate_rigor="proven",
             inputs={"mu": mu, "rate": rate},
-            norm_addition=NormAddition(
-                profile=b_profile,
-                space_time=b_space_time,
-                info=SourceInfo(
-                    "boundary lifting",
-                    "||B r(t)||",
-                    "sqrt(L/3 (r_a(t)^2 + r_a(t) r_b(t) + r_b(t)^2))",
-                    "heuristic",
-                    "closed form at the time nodes; between them the time interpolant of the "
-                    "boundary residual, and the time quadrature for the space-time norm",
-                ),
-            ),
+            norm_addition=lifting_addition(grid, length, r),
             label="boundary lifting",
         )
+
+    def _energy_constants(self, initial: float, rate: float, mu: float) -> list[ConstantInfo]:
+        """The family's constants with the initial energy ``E(t0)/mu``, the rate and
+        ``E(t0)`` filled in."""
+        constants = [c.with_value(None) for c in self.constants()]
+        constants[0] = constants[0].with_value(initial, "heuristic")
+        constants[1] = constants[1].with_value(rate, "proven")
+        constants[2] = constants[2].with_value(initial * mu, "heuristic")
+        return constants
 
     def _choose_mu(
         self,

@@ -166,6 +166,18 @@ def op1(u: sp.Expr) -> sp.Expr:
     return sp.diff(u, t, 2) - C1**2 * sp.diff(u, x, 2)
 
 
+STANDING_PROBLEM = {
+    "equation": "u_tt = c^2*u_xx",
+    "space": {"x": [0.0, 1.0]},
+    "time": [0.0, 1.0],
+    "parameters": {"c": float(C1)},
+    "boundary": "dirichlet",
+    "initial_value": "sin(2*pi*x)",
+    "initial_velocity": "0",
+    "boundary_value": "0",
+}
+
+
 def test_standing_mode_solves_its_equation() -> None:
     """Separation of variables on a string with fixed ends: u = sin(k pi x) cos(k pi c t)
     (Strauss, PDE: An Introduction, 2nd ed. 2008, sec. 4.1, eq. (4.1.9) -- equation number
@@ -179,16 +191,7 @@ def test_standing_mode_dirichlet(eps: float) -> None:
     """Strauss 2008, sec. 4.1 (standing wave of the fixed string, from memory); the perturbation
     moves the boundary values, so the flux estimate has the boundary energy flux
     2 c^2 int |d_t R_b| (G_u + G_m); the lifted estimate removes it."""
-    problem = {
-        "equation": "u_tt = c^2*u_xx",
-        "space": {"x": [0.0, 1.0]},
-        "time": [0.0, 1.0],
-        "parameters": {"c": float(C1)},
-        "boundary": "dirichlet",
-        "initial_value": "sin(2*pi*x)",
-        "initial_velocity": "0",
-        "boundary_value": "0",
-    }
+    problem = STANDING_PROBLEM
     space = {"x": (0.0, 1.0)}
     grad_u = 2 * math.pi  # sup |u_x| of the exact solution, exact
     regularity = {
@@ -351,16 +354,7 @@ def test_telegraph_mode_dirichlet(eps: float) -> None:
 def test_lifting_refused_for_an_inconsistent_boundary_t() -> None:
     """W1: a boundary_t that is not the time derivative of the boundary residual (here scaled
     by 1.5) refuses the lifting with a warning; the flux estimate alone is reported."""
-    problem = {
-        "equation": "u_tt = c^2*u_xx",
-        "space": {"x": [0.0, 1.0]},
-        "time": [0.0, 1.0],
-        "parameters": {"c": float(C1)},
-        "boundary": "dirichlet",
-        "initial_value": "sin(2*pi*x)",
-        "initial_velocity": "0",
-        "boundary_value": "0",
-    }
+    problem = STANDING_PROBLEM
     spec = ProblemSpec.model_validate(problem)
     classified = derive(spec)
     pid = "prb_" + problem_sha256(spec)[:32]
