@@ -14,6 +14,9 @@ write engine is an option view of the same engine (shared pool) carrying
 
 from __future__ import annotations
 
+import random
+import sqlite3
+import time
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
@@ -38,7 +41,8 @@ SQLITE_BUSY_TIMEOUT_MS = 30_000
 _WRITE_OPTION = "boundsvc_write"
 
 #: Pragmas applied to every new SQLite connection, in this order (``busy_timeout`` first
-#: so that switching to WAL on a fresh file waits for a concurrent opener).
+#: so that switching to WAL on a fresh file waits for a concurrent opener where SQLite
+#: calls the busy handler; where it does not, see :func:`_execute_pragma`).
 SQLITE_PRAGMAS: tuple[tuple[str, str], ...] = (
     ("busy_timeout", str(SQLITE_BUSY_TIMEOUT_MS)),
     ("journal_mode", "WAL"),
@@ -103,13 +107,40 @@ def sqlite_file_missing(url: URL) -> bool:
     return not Path(url.database).exists()
 
 
+def _is_lock_error(exc: sqlite3.OperationalError) -> bool:
+    text = str(exc).lower()
+    return "locked" in text or "busy" in text
+
+
+def _execute_pragma(cursor: Any, statement: str, deadline: float) -> None:
+    """Run ``statement``, retrying while SQLite reports the database locked.
+
+    Switching a fresh file to WAL needs an exclusive lock, and when two connections
+    open the same new file at once SQLite can answer ``SQLITE_BUSY`` at once, without
+    calling the busy handler (it does so where waiting could deadlock).  The busy
+    timeout therefore does not cover this step; we retry with a short jittered pause
+    until the same timeout has passed, then let the error through.
+    """
+    pause = 0.005
+    while True:
+        try:
+            cursor.execute(statement)
+            return
+        except sqlite3.OperationalError as exc:
+            if not _is_lock_error(exc) or time.monotonic() + pause > deadline:
+                raise
+        time.sleep(pause * (0.5 + random.random()))  # noqa: S311 - jitter, not security
+        pause = min(pause * 2, 0.25)
+
+
 def _on_sqlite_connect(dbapi_connection: Any, _record: ConnectionPoolEntry) -> None:
     # Driver-level autocommit: pysqlite must never emit BEGIN itself (our hook does).
     dbapi_connection.isolation_level = None
+    deadline = time.monotonic() + SQLITE_BUSY_TIMEOUT_MS / 1000
     cursor = dbapi_connection.cursor()
     try:
         for name, value in SQLITE_PRAGMAS:
-            cursor.execute(f"PRAGMA {name} = {value}")
+            _execute_pragma(cursor, f"PRAGMA {name} = {value}", deadline)
     finally:
         cursor.close()
 

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import sqlite3
 import threading
 import time
 from collections.abc import Iterator
@@ -11,7 +12,7 @@ import pytest
 from sqlalchemy import event, text
 
 from boundsvc.store import SQLITE_BUSY_TIMEOUT_MS, Store, open_store, upgrade
-from boundsvc.store._engine import make_engines, parse_url
+from boundsvc.store._engine import _execute_pragma, make_engines, parse_url
 
 
 @pytest.fixture
@@ -54,6 +55,44 @@ def test_sqlite_pragmas_are_set_on_every_connection(sqlite_store: Store) -> None
             assert conn.exec_driver_sql("PRAGMA foreign_keys").scalar() == 1
             assert conn.exec_driver_sql("PRAGMA busy_timeout").scalar() == SQLITE_BUSY_TIMEOUT_MS
         assert first.connection.dbapi_connection is not second.connection.dbapi_connection
+
+
+class _FlakyCursor:
+    """A cursor whose first ``failures`` statements fail with ``error``."""
+
+    def __init__(self, failures: int, error: str) -> None:
+        self.failures = failures
+        self.error = error
+        self.calls = 0
+
+    def execute(self, statement: str) -> None:
+        self.calls += 1
+        if self.calls <= self.failures:
+            raise sqlite3.OperationalError(self.error)
+
+
+def test_pragma_retries_an_immediate_busy_answer() -> None:
+    # SQLite can answer SQLITE_BUSY to the WAL switch without calling the busy handler
+    # when two connections open a new file at once (seen in CI as "database is locked").
+    cursor = _FlakyCursor(3, "database is locked")
+    _execute_pragma(cursor, "PRAGMA journal_mode = WAL", time.monotonic() + 5)
+    assert cursor.calls == 4
+
+
+def test_pragma_gives_up_at_the_deadline() -> None:
+    cursor = _FlakyCursor(10**6, "database is locked")
+    start = time.monotonic()
+    with pytest.raises(sqlite3.OperationalError, match="locked"):
+        _execute_pragma(cursor, "PRAGMA journal_mode = WAL", start + 0.2)
+    assert cursor.calls > 1
+    assert time.monotonic() - start < 2
+
+
+def test_pragma_does_not_retry_other_errors() -> None:
+    cursor = _FlakyCursor(1, "disk I/O error")
+    with pytest.raises(sqlite3.OperationalError, match="disk"):
+        _execute_pragma(cursor, "PRAGMA journal_mode = WAL", time.monotonic() + 5)
+    assert cursor.calls == 1
 
 
 def test_sqlite_writes_begin_immediate_reads_deferred(

@@ -216,8 +216,8 @@ def test_concurrent_first_opens_of_sqlite(sqlite_url: str) -> None:
         finally:
             store.dispose()
 
-    with ThreadPoolExecutor(max_workers=4) as pool:
-        assert all(f.result(timeout=120) for f in [pool.submit(open_and_close) for _ in range(4)])
+    with ThreadPoolExecutor(max_workers=6) as pool:
+        assert all(f.result(timeout=120) for f in [pool.submit(open_and_close) for _ in range(6)])
     assert current_revision(sqlite_url) == "0001"
 
 
