@@ -32,6 +32,7 @@ from boundsvc.families import (
 from boundsvc.families._base import Rigor
 from boundsvc.fields import residuals_from_fields
 from boundsvc.quadrature import (
+    MIN_RESOLVED_NODES,
     Plan,
     PlanError,
     QuadratureLog,
@@ -497,6 +498,17 @@ def _quadrature_section(
         warnings.append(
             "the quadrature allowance of the residual integrals is a heuristic "
             "estimate (use fresh, non-training points)"
+        )
+    for component in sorted({s.component for s in log.statements if s.coarse}):
+        reasons = sorted(
+            {s.coarse for s in log.statements if s.component == component and s.coarse}
+        )
+        warnings.append(
+            f"the plan does not resolve the squared residual of "
+            f"component {component!r} ({'; '.join(reasons)}); its heuristic allowance was "
+            f"raised to the integral estimate itself, which still misses features the nodes "
+            f"cannot see, so the bound may be below the true error: use at least "
+            f"{MIN_RESOLVED_NODES} nodes per panel and more where the residual oscillates"
         )
     term: dict[str, Any] | None = None
     allowance = sum(s.allowance for s in log.statements)

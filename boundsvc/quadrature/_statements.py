@@ -52,6 +52,9 @@ class QuadratureStatement:
     failure_probability: float = 0.0
     allowance: float = 0.0
     estimate: float = 0.0
+    #: Gauss-Legendre heuristic only: why the plan looks too coarse for this integral
+    #: (``None``: it does not).
+    coarse: str | None = None
 
 
 @dataclass

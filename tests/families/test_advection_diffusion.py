@@ -73,3 +73,43 @@ def test_advection_diffusion_reaction_fourier_mode(eps: float) -> None:
     op = lambda v: sp.diff(v, t) + a * sp.diff(v, x) - k * sp.diff(v, x, 2) + c * v  # noqa: E731
     doc, err = run_case(problem, regularity, um, u, op, u.subs(t, 0), u)
     assert_bound_holds(doc, err)
+
+
+@pytest.mark.parametrize("x_nodes", [3, 4, 5, 8])
+def test_coarse_space_plan_is_warned_and_still_bounds(x_nodes: int) -> None:
+    """The separable heat solution u = e^{-k pi^2 t} sin(pi x) (Strauss 2008, sec. 4.1) with
+    a perturbation that oscillates in x, certified on 3-8 Gauss-Legendre nodes in x: below
+    6 nodes the certificate warns that the plan does not resolve the squared residual (the
+    heuristic allowance is floored at the integral estimate) and the bound still holds."""
+    u = sp.exp(-K * sp.pi**2 * t) * sp.sin(sp.pi * x)
+    problem = {
+        "equation": "u_t = k*u_xx",
+        "space": {"x": [0.0, 1.0]},
+        "time": [0.0, 0.5],
+        "parameters": {"k": K},
+        "boundary": "dirichlet",
+        "initial_value": "sin(pi*x)",
+        "boundary_value": "0",
+    }
+    eps = 1e-2
+    um = u + eps * sp.cos(3 * sp.pi * x + 0.5) * (1 + t)
+    # |u_x| <= pi e^{-k pi^2 t}; |d/dx of the perturbation| <= 3 pi * 1.5
+    regularity = {
+        "sup_abs_u_x": "pi*exp(-k*pi^2*t)",
+        "sup_abs_model_u_x": f"pi*exp(-k*pi^2*t) + {eps * 4.5 * 3.1416}",
+    }
+    doc, err = run_case(
+        problem,
+        regularity,
+        um,
+        u,
+        heat_operator(K),
+        sp.sin(sp.pi * x),
+        sp.Integer(0),
+        {"t": 16, "x": x_nodes},
+    )
+    assert_bound_holds(doc, err)
+    warned = [w for w in doc["warnings"] if "does not resolve the squared residual" in w]
+    assert bool(warned) == (x_nodes < 6)
+    if warned:
+        assert f"x ({x_nodes})" in warned[0]

@@ -12,7 +12,7 @@ import pytest
 
 from api_schemas import PlanRequest, ProblemSpec
 from boundsvc.certify import build_plan, derive, plan_spec
-from boundsvc.quadrature import QuadratureLog, quadrature_log
+from boundsvc.quadrature import MIN_RESOLVED_NODES, QuadratureLog, quadrature_log
 from boundsvc.quadrature._integrals import slice_integrals
 
 HEAT2D = {
@@ -70,7 +70,7 @@ def test_time_major_flag_does_not_survive_another_time_index() -> None:
 def test_gauss_allowance_matches_the_materialised_formula() -> None:
     """The heuristic allowance (last Legendre coefficients per axis) computed from the axis
     sums equals the same formula on explicitly materialised per-slice tensors."""
-    plan = _plan(points={"t": 3, "x": 6, "y": 5}, panels={"x": 2})
+    plan = _plan(points={"t": 3, "x": 12, "y": 7}, panels={"x": 2})
     comp = plan.components["interior"]
     f = np.random.default_rng(1).random(comp.size) ** 2
     with quadrature_log(QuadratureLog()) as log:
@@ -93,3 +93,45 @@ def test_gauss_allowance_matches_the_materialised_formula() -> None:
         expected += (0.5 / comp.space_panels[k] * np.abs(coef).sum(axis=-1)).sum(axis=1)
     np.testing.assert_allclose(upper - estimate, expected, rtol=1e-10)
     assert log.statements and log.statements[0].rule == "gauss-legendre"
+    assert log.statements[0].coarse is None
+
+
+@pytest.mark.parametrize(("x_nodes", "y_nodes"), [(8, 5), (4, 7), (5, 3)])
+def test_gauss_allowance_on_coarse_panels_is_at_least_the_estimate(
+    x_nodes: int, y_nodes: int
+) -> None:
+    """Below MIN_RESOLVED_NODES nodes per panel on an axis the heuristic allowance is at
+    least the integral estimate itself, and the statement names the coarse axes."""
+    plan = _plan(points={"t": 3, "x": x_nodes, "y": y_nodes}, panels={"x": 2})
+    comp = plan.components["interior"]
+    f = np.random.default_rng(2).random(comp.size) ** 2
+    with quadrature_log(QuadratureLog()) as log:
+        upper = slice_integrals(comp, f, 3)
+    estimate = _by_definition(comp, f, 3)
+    assert np.all(upper >= 2 * estimate * (1 - 1e-12))
+    coarse = log.statements[0].coarse
+    assert coarse is not None
+    per_panel = {"x": x_nodes, "y": y_nodes}  # plan points are nodes per panel
+    for axis, n in per_panel.items():
+        assert (f"{axis} ({n})" in coarse) == (n < MIN_RESOLVED_NODES)
+
+
+def test_coarse_floor_covers_an_integral_the_tail_estimate_misses() -> None:
+    """``sin^2(3.5 pi x + 0.5)`` on [0, 1] sampled on 5 Gauss-Legendre nodes: the sum is
+    about half of the integral (reference: scipy.integrate.quad) and the Legendre-tail
+    estimate alone leaves the upper limit below it; the coarse-panel floor covers it."""
+    from scipy.integrate import quad
+
+    from boundsvc.quadrature._statements import legendre_tail
+
+    nodes, weights = np.polynomial.legendre.leggauss(5)
+    xs, ws = (nodes + 1) / 2, weights / 2
+
+    def g(s: np.ndarray) -> np.ndarray:
+        return np.sin(3.5 * np.pi * s + 0.5) ** 2
+
+    est = float(ws @ g(xs))
+    tail = float(legendre_tail(g(xs)[None, :], 5, 1.0)[0])
+    true = quad(g, 0.0, 1.0, limit=200)[0]
+    assert est + tail < true  # the heuristic alone fails here
+    assert est + max(tail, est) >= true  # the floor used below 6 nodes covers it
