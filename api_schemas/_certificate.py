@@ -6,7 +6,7 @@ from typing import Any, Literal
 
 from pydantic import BaseModel, ConfigDict, Field, model_validator
 
-from api_schemas._common import ModelInfo
+from api_schemas._common import ModelInfo, Number
 from api_schemas._plan import InlinePlanComponent
 from api_schemas._problem import ProblemSpec
 from api_schemas._residuals import ResidualValues
@@ -20,15 +20,15 @@ class QuadratureOptions(BaseModel):
 
     model_config = ConfigDict(extra="forbid")
 
-    confidence: float = Field(
+    confidence: Number = Field(
         default=0.95, gt=0.5, lt=1.0, description="joint confidence of all statistical statements"
     )
-    derivative_bounds: dict[str, dict[str, float]] = Field(
+    derivative_bounds: dict[str, dict[str, Number]] = Field(
         default_factory=dict,
         description="component -> axis -> bound on |d^{2n} (r^2) / d axis^{2n}| "
         "(Gauss-Legendre error term)",
     )
-    residual_bounds: dict[str, float] = Field(
+    residual_bounds: dict[str, Number] = Field(
         default_factory=dict, description="component -> bound on |r| (Hoeffding limit)"
     )
 
@@ -40,7 +40,7 @@ class CertificateRequest(BaseModel):
 
     problem: ProblemSpec | None = None
     problem_id: str | None = None
-    regularity: dict[str, float | str] = Field(default_factory=dict)
+    regularity: dict[str, Number | str] = Field(default_factory=dict)
     plan_id: str | None = None
     plan: dict[str, InlinePlanComponent] | None = Field(
         default=None, description="Inline points and weights per component instead of plan_id."
@@ -186,7 +186,7 @@ class VerifyRequest(BaseModel):
 
     model_config = ConfigDict(extra="forbid")
 
-    rtol: float = Field(
+    rtol: Number = Field(
         default=1e-12,
         ge=0.0,
         le=1.0,

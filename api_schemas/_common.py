@@ -2,9 +2,24 @@
 
 from __future__ import annotations
 
-from typing import Any
+from typing import Annotated, Any
 
-from pydantic import BaseModel, ConfigDict, Field
+from pydantic import BaseModel, BeforeValidator, ConfigDict, Field, Strict
+
+
+def _not_a_boolean(value: Any) -> Any:
+    if isinstance(value, bool):
+        raise ValueError("a boolean is not a number")
+    return value
+
+
+#: A number in a request: an integer or a float, never a boolean (JSON ``true`` would
+#: otherwise be read as 1.0). Strict float: validated in pydantic-core, no Python call per
+#: element, so it also serves long residual arrays.
+Number = Annotated[float, Strict()]
+
+#: A count in a request: an integer (a float with an integral value too), never a boolean.
+Count = Annotated[int, BeforeValidator(_not_a_boolean)]
 
 
 class ProblemFieldError(BaseModel):
@@ -37,5 +52,5 @@ class ModelInfo(BaseModel):
 
     name: str | None = Field(default=None, max_length=200)
     version: str | None = Field(default=None, max_length=200)
-    epoch: int | None = Field(default=None, ge=0)
+    epoch: Count | None = Field(default=None, ge=0)
     metadata: dict[str, Any] = Field(default_factory=dict)

@@ -6,6 +6,7 @@ from typing import Literal
 
 from pydantic import BaseModel, ConfigDict, Field, model_validator
 
+from api_schemas._common import Count, Number
 from api_schemas._problem import ProblemSpec
 
 RuleName = Literal["gauss-legendre", "sobol", "monte-carlo", "grid", "custom"]
@@ -17,8 +18,8 @@ class InlinePlanComponent(BaseModel):
     model_config = ConfigDict(extra="forbid")
 
     axes: list[str]
-    points: list[list[float]]
-    weights: list[float]
+    points: list[list[Number]]
+    weights: list[Number]
 
 
 class PlanRequest(BaseModel):
@@ -29,22 +30,22 @@ class PlanRequest(BaseModel):
     problem: ProblemSpec | None = None
     problem_id: str | None = None
     rule: RuleName = "gauss-legendre"
-    points: dict[str, int] = Field(
+    points: dict[str, Count] = Field(
         default_factory=dict,
         description="Nodes per panel and axis ('t', 'x', ...): Gauss-Legendre nodes, grid nodes; "
         "for sobol/monte-carlo only 't' (Gauss-Legendre time nodes).",
     )
-    panels: dict[str, int] = Field(
+    panels: dict[str, Count] = Field(
         default_factory=dict, description="Composite panels per axis (default 1)."
     )
-    n: int | None = Field(
+    n: Count | None = Field(
         default=None,
         ge=2,
         le=4_000_000,
         description="sobol/monte-carlo: interior points per replicate (n / time nodes per slice)",
     )
-    replicates: int = Field(default=8, ge=1, le=64, description="sobol: independent scramblings")
-    seed: int | None = Field(
+    replicates: Count = Field(default=8, ge=1, le=64, description="sobol: independent scramblings")
+    seed: Count | None = Field(
         default=None,
         ge=0,
         le=2**63 - 1,

@@ -7,6 +7,8 @@ from typing import Literal
 
 from pydantic import BaseModel, ConfigDict, Field, field_validator, model_validator
 
+from api_schemas._common import Number
+
 BoundaryKind = Literal["dirichlet", "periodic"]
 
 _AXES = ("x", "y", "z")
@@ -29,9 +31,9 @@ class ProblemSpec(BaseModel):
     unknowns: list[str] | None = Field(
         default=None, description="Names of the unknowns (default ['u']); one per equation."
     )
-    space: dict[str, tuple[float, float]] = Field(default_factory=dict)
-    time: tuple[float, float] | None = None
-    parameters: dict[str, float] = Field(default_factory=dict)
+    space: dict[str, tuple[Number, Number]] = Field(default_factory=dict)
+    time: tuple[Number, Number] | None = None
+    parameters: dict[str, Number] = Field(default_factory=dict)
     boundary: BoundaryKind | dict[str, BoundaryKind] = "dirichlet"
     initial_value: str | list[str] | None = None
     boundary_value: str | None = None

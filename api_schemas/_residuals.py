@@ -6,6 +6,8 @@ from typing import Literal
 
 from pydantic import BaseModel, ConfigDict, Field
 
+from api_schemas._common import Number
+
 
 class EncodedArray(BaseModel):
     """A flat little-endian array in base64 (C order of (point, equation) for systems)."""
@@ -17,4 +19,4 @@ class EncodedArray(BaseModel):
     data: str = Field(description="base64 of the little-endian bytes")
 
 
-ResidualValues = list[float] | list[list[float]] | EncodedArray
+ResidualValues = list[Number] | list[list[Number]] | EncodedArray

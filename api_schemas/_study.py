@@ -6,6 +6,8 @@ from typing import Any, Literal
 
 from pydantic import BaseModel, ConfigDict, Field, field_validator, model_validator
 
+from api_schemas._common import Number
+
 BoundQuantity = Literal["l2_space_time", "l2_final_time"]
 
 
@@ -15,7 +17,7 @@ class SweptParameter(BaseModel):
     model_config = ConfigDict(extra="forbid")
 
     name: str = Field(min_length=1, max_length=100)
-    values: dict[str, float] = Field(description="certificate id -> parameter value")
+    values: dict[str, Number] = Field(description="certificate id -> parameter value")
 
     @field_validator("values")
     @classmethod
@@ -32,7 +34,7 @@ class StudyRequest(BaseModel):
     model_config = ConfigDict(extra="forbid")
 
     certificate_ids: list[str] = Field(min_length=1, max_length=500)
-    measured_errors: dict[str, float] | None = Field(
+    measured_errors: dict[str, Number] | None = Field(
         default=None, description="certificate id -> measured error in the bounded norm (> 0)"
     )
     swept_parameter: SweptParameter | None = None
@@ -40,7 +42,7 @@ class StudyRequest(BaseModel):
     bound: BoundQuantity = Field(
         default="l2_space_time", description="which bound of each certificate is compared"
     )
-    confidence_level: float = Field(default=0.95, gt=0.0, lt=1.0)
+    confidence_level: Number = Field(default=0.95, gt=0.0, lt=1.0)
 
     @field_validator("measured_errors")
     @classmethod

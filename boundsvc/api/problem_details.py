@@ -73,9 +73,53 @@ def problem_response(
     return Response(orjson.dumps(body), status_code=status, media_type=PROBLEM_JSON, headers=hdrs)
 
 
+#: pydantic names the member of a union it tried in the error location ("float", "str",
+#: "list[float]", "EncodedArray", "function-after[...]"); request field names are snake_case.
+_TYPE_TAGS = frozenset({"float", "int", "str", "bool", "dict", "list", "tuple", "none"})
+
+
+def _is_union_tag(part: Any) -> bool:
+    return isinstance(part, str) and (
+        part in _TYPE_TAGS or "[" in part or (part[:1].isupper() and part.isidentifier())
+    )
+
+
 def _field_path(loc: tuple[Any, ...] | list[Any]) -> str:
-    parts = [str(p) for p in loc if p not in ("body",)]
+    parts = [str(p) for p in loc if p not in ("body",) and not _is_union_tag(p)]
     return ".".join(parts) if parts else "body"
+
+
+def _validation_errors(raw: list[Any]) -> list[dict[str, Any]]:
+    """The field errors of a validation failure, one union member per field.
+
+    A value that fits no member of a union (``number | expression``, ``JSON rows | base64``)
+    gives one error per member; the first member tried is the field's main form, so only
+    its errors are kept (``regularity.k: Input should be a valid number``, not also "a valid
+    string"). The union tags are dropped from the path; ``index`` is the last array index.
+    """
+    chosen: dict[tuple[Any, ...], Any] = {}
+    out: list[dict[str, Any]] = []
+    seen: set[tuple[str, str]] = set()
+    for err in raw:
+        loc = tuple(err.get("loc", ()))
+        tag_at = next((i for i, p in enumerate(loc) if _is_union_tag(p)), None)
+        if tag_at is not None:
+            prefix = loc[:tag_at]
+            if chosen.setdefault(prefix, loc[tag_at]) != loc[tag_at]:
+                continue
+        entry: dict[str, Any] = {
+            "field": _field_path(loc),
+            "message": str(err.get("msg", "invalid")),
+        }
+        key = (entry["field"], entry["message"])
+        if key in seen:
+            continue
+        seen.add(key)
+        index = next((p for p in reversed(loc) if isinstance(p, int)), None)
+        if index is not None:
+            entry["index"] = index
+        out.append(entry)
+    return out
 
 
 def install_error_handlers(app: FastAPI) -> None:
@@ -95,17 +139,9 @@ def install_error_handlers(app: FastAPI) -> None:
 
     @app.exception_handler(RequestValidationError)
     async def _validation(request: Request, exc: RequestValidationError) -> Response:
-        errors = []
-        json_error = False
-        for err in exc.errors():
-            if err.get("type") == "json_invalid":
-                json_error = True
-            errors.append(
-                {
-                    "field": _field_path(err.get("loc", ())),
-                    "message": str(err.get("msg", "invalid")),
-                }
-            )
+        raw = list(exc.errors())
+        json_error = any(err.get("type") == "json_invalid" for err in raw)
+        errors = _validation_errors(raw)
         if json_error:
             return problem_response(
                 request, 400, "invalid_json", "the request body is not valid JSON", errors=errors

@@ -387,3 +387,77 @@ def test_list_newest_first_and_filter_by_model(client: TestClient) -> None:
     assert {item["id"] for item in only_a} == set(ids[:2])
     v1 = client.get("/v1/certificates", params={"model": "net-a", "version": "1"}).json()
     assert [item["id"] for item in v1["items"]] == [ids[1]]
+
+
+class TestBooleansAreNotNumbers:
+    """JSON ``true`` is not a number (found by tools/probe_soundness.py: ``true`` was read
+    as 1.0 for a regularity value). Every numeric request field refuses it with 422
+    ``validation_error`` and the field at fault, without the union member names."""
+
+    problem: ClassVar[dict[str, Any]] = {
+        "equation": "u_t = u_xx",
+        "space": {"x": [0.0, 1.0]},
+        "time": [0.0, 1.0],
+    }
+
+    def _plan(self, client: TestClient) -> dict[str, Any]:
+        r = client.post("/v1/plans", json={"problem": self.problem, "points": {"t": 6, "x": 6}})
+        assert r.status_code == 201, r.text
+        return r.json()
+
+    def _certify(self, client: TestClient, **change: Any) -> Any:
+        plan = self._plan(client)
+        body: dict[str, Any] = {
+            "problem": self.problem,
+            "plan_id": plan["plan_id"],
+            "regularity": {"sup_abs_u_x": 1.0, "sup_abs_model_u_x": 1},
+            "residuals": {c["name"]: [0.001] * c["size"] for c in plan["components"]},
+        }
+        for key, value in change.items():
+            if key == "interior_value":
+                body["residuals"]["interior"][3] = value
+            else:
+                body[key] = value
+        return client.post("/v1/certificates", json=body)
+
+    def test_integers_are_still_numbers(self, client: TestClient) -> None:
+        r = self._certify(client)
+        assert r.status_code == 201, r.text
+
+    def test_boolean_regularity(self, client: TestClient) -> None:
+        reg = {"sup_abs_u_x": True, "sup_abs_model_u_x": 1.0}
+        body = _problem_error(self._certify(client, regularity=reg), 422, "validation_error")
+        assert body["errors"] == [
+            {"field": "regularity.sup_abs_u_x", "message": "Input should be a valid number"}
+        ]
+
+    def test_boolean_residual_value_names_the_index(self, client: TestClient) -> None:
+        body = _problem_error(self._certify(client, interior_value=False), 422, "validation_error")
+        first = body["errors"][0]
+        assert first["field"] == "residuals.interior.3" and first["index"] == 3
+        assert all("list[" not in e["field"] for e in body["errors"])
+
+    def test_boolean_quadrature_option(self, client: TestClient) -> None:
+        r = self._certify(client, quadrature={"residual_bounds": {"interior": True}})
+        body = _problem_error(r, 422, "validation_error")
+        assert body["errors"][0]["field"] == "quadrature.residual_bounds.interior"
+
+    @pytest.mark.parametrize(
+        ("change", "field"),
+        [
+            ({"time": [0.0, True]}, "problem.time.1"),
+            ({"space": {"x": [False, 1.0]}}, "problem.space.x.0"),
+            ({"parameters": {"k": True}}, "problem.parameters.k"),
+        ],
+    )
+    def test_boolean_in_the_problem(
+        self, client: TestClient, change: dict[str, Any], field: str
+    ) -> None:
+        r = client.post("/v1/problems", json={"problem": {**self.problem, **change}})
+        body = _problem_error(r, 422, "validation_error")
+        assert body["errors"][0]["field"] == field
+
+    def test_boolean_plan_count(self, client: TestClient) -> None:
+        r = client.post("/v1/plans", json={"problem": self.problem, "points": {"t": True}})
+        body = _problem_error(r, 422, "validation_error")
+        assert body["errors"][0]["field"] == "points.t"
