@@ -32,7 +32,8 @@ class PlanRequest(BaseModel):
     rule: RuleName = "gauss-legendre"
     points: dict[str, Count] = Field(
         default_factory=dict,
-        description="Nodes per panel and axis ('t', 'x', ...): Gauss-Legendre nodes, grid nodes; "
+        description="Nodes per panel and axis ('t', 'x', ...): Gauss-Legendre nodes (4 to 256), "
+        "grid nodes; "
         "for sobol/monte-carlo only 't' (Gauss-Legendre time nodes).",
     )
     panels: dict[str, Count] = Field(

@@ -292,6 +292,14 @@ def plan_body(plan: Plan, problem_id: str, *, with_arrays: bool = True) -> dict[
             "custom points: no quadrature error term; evaluating residuals at the "
             "training points biases the bound low"
         )
+    coarse = _coarse_axes(plan)
+    if coarse:
+        warnings.append(
+            f"fewer than {MIN_RESOLVED_NODES} Gauss-Legendre nodes per panel along "
+            f"{', '.join(coarse)}: certificates on this plan floor the quadrature allowance "
+            "at the integral estimate and warn that the bound may be below the true error; "
+            f"use {MIN_RESOLVED_NODES} or more"
+        )
     components = []
     for c in plan.components.values():
         item: dict[str, Any] = {"name": c.name, "axes": list(c.axes), "size": c.size}
@@ -310,6 +318,22 @@ def plan_body(plan: Plan, problem_id: str, *, with_arrays: bool = True) -> dict[
         "seed": spec.get("seed"),
         "replicates": spec.get("replicates"),
     }
+
+
+def _coarse_axes(plan: Plan) -> list[str]:
+    """Axes with Gauss-Legendre panels of fewer than ``MIN_RESOLVED_NODES`` nodes, as
+    ``"x (4)"`` (time for every rule with a Gauss time axis, space for gauss-legendre)."""
+    out = []
+    time = plan.time
+    if time is not None and time.mode == "gauss" and time.nodes_per_panel < MIN_RESOLVED_NODES:
+        out.append(f"t ({time.nodes_per_panel})")
+    interior = plan.components.get("interior")
+    if interior is not None and interior.rule == "gauss-legendre":
+        space = [a for a in interior.axes if a != "t"]
+        for axis, n, m in zip(space, interior.space_shape, interior.space_panels, strict=False):
+            if n // m < MIN_RESOLVED_NODES:
+                out.append(f"{axis} ({n // m})")
+    return out
 
 
 def _libraries() -> dict[str, str]:
@@ -383,6 +407,11 @@ def certify(
         derivative_bounds=options.derivative_bounds,
         residual_bounds=options.residual_bounds,
         statistical_components=max(len(statistical), 1),
+        time_nodes_per_panel=(
+            plan.time.nodes_per_panel
+            if plan.time is not None and plan.time.mode == "gauss"
+            else None
+        ),
     )
     inputs = CertifyInputs(plan=plan, residuals=arrays, regularity=values)
     if plan.time is None:

@@ -123,6 +123,14 @@ def _limit(
         method = "client points and weights: no quadrature error term"
     if rule != "gauss-legendre":
         coarse = None
+    n_t = log.time_nodes_per_panel
+    if n_t is not None and n_t < MIN_RESOLVED_NODES and estimate.size > 1:
+        # The slice integrals are interpolated in time from n_t nodes per panel (the
+        # Gronwall forcing): the same floor as for a coarse space axis.
+        reason = f"fewer than {MIN_RESOLVED_NODES} nodes per panel along t ({n_t})"
+        allowance = np.maximum(allowance, estimate)
+        method += f"; at least the integral estimate itself ({reason})"
+        coarse = f"{coarse}; {reason}" if coarse else reason
     log.statements.append(
         QuadratureStatement(
             component=component.name,

@@ -23,6 +23,12 @@ IntArray = NDArray[np.int64]
 AxisRule = Callable[[int, float, float, int], tuple[FloatArray, FloatArray, FloatArray]]
 
 DEFAULT_POINTS = {"t": 32, "x": 32, "y": 16, "z": 12}
+#: Fewest Gauss-Legendre nodes per panel on an axis. With 3 the heuristic quadrature
+#: allowance, even floored (``_integrals.MIN_RESOLVED_NODES``), stayed below the integral
+#: for 4.7 % of random smooth squared residuals, with 4 for 0.3 % (tools/coarse_gauss_sweep.py;
+#: the probe found bounds below the true error on 3-node plans; docs/api.md, "Coarse
+#: Gauss-Legendre panels").
+MIN_GAUSS_NODES = 4
 MAX_PLAN_POINTS = 16_000_000
 
 
@@ -134,7 +140,7 @@ def plan_id_for(spec: Mapping[str, Any]) -> str:
 
 
 def _counts(
-    domain: Domain, points: Mapping[str, int], panels: Mapping[str, int]
+    domain: Domain, points: Mapping[str, int], panels: Mapping[str, int], minimum: int = 1
 ) -> dict[str, tuple[int, int]]:
     axes = (["t"] if domain.time is not None else []) + list(domain.space_axes)
     for name in list(points) + list(panels):
@@ -150,6 +156,13 @@ def _counts(
         if not 1 <= n <= 256:
             raise PlanError(
                 f"points.{name} must be between 1 and 256 per panel, got {n}", f"points.{name}"
+            )
+        if n < minimum:
+            raise PlanError(
+                f"points.{name}: at least {minimum} Gauss-Legendre nodes per panel, got {n}: "
+                "fewer cannot resolve a residual, and the quadrature allowance then leaves "
+                "bounds below the true error; use 6 or more (more panels for long axes)",
+                f"points.{name}",
             )
         if not 1 <= m <= 256:
             raise PlanError(f"panels.{name} must be between 1 and 256, got {m}", f"panels.{name}")
@@ -187,7 +200,7 @@ def build_gauss_plan(
     points of one time slice are contiguous.
     """
     rule_1d = axis_rule or gauss_legendre
-    counts = _counts(domain, points, panels)
+    counts = _counts(domain, points, panels, MIN_GAUSS_NODES if axis_rule is None else 1)
     total = 1
     for n, m in counts.values():
         total *= n * m

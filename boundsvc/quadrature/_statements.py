@@ -65,6 +65,9 @@ class QuadratureLog:
     derivative_bounds: Mapping[str, Mapping[str, float]] = field(default_factory=dict)
     residual_bounds: Mapping[str, float] = field(default_factory=dict)
     statistical_components: int = 1
+    #: Gauss-Legendre time nodes per panel of the plan (``None``: no Gauss time axis); the
+    #: forcing is interpolated in time from that many nodes (see ``MIN_RESOLVED_NODES``).
+    time_nodes_per_panel: int | None = None
     statements: list[QuadratureStatement] = field(default_factory=list)
     _calls: dict[str, int] = field(default_factory=dict)
 

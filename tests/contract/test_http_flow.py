@@ -461,3 +461,39 @@ class TestBooleansAreNotNumbers:
         r = client.post("/v1/plans", json={"problem": self.problem, "points": {"t": True}})
         body = _problem_error(r, 422, "validation_error")
         assert body["errors"][0]["field"] == "points.t"
+
+
+@pytest.mark.parametrize(
+    ("problem", "points", "field"),
+    [
+        (
+            {"equation": "u_t = u_xx", "space": {"x": [0.0, 1.0]}, "time": [0.0, 1.0]},
+            {"t": 3, "x": 16},
+            "points.t",
+        ),
+        (
+            {"equation": "u_t = u_xx", "space": {"x": [0.0, 1.0]}, "time": [0.0, 1.0]},
+            {"t": 16, "x": 2},
+            "points.x",
+        ),
+        ({"equation": "y_t = -y", "unknowns": ["y"], "time": [0.0, 1.0]}, {"t": 1}, "points.t"),
+    ],
+)
+def test_gauss_plans_below_four_nodes_are_refused(
+    client: TestClient, problem: dict[str, Any], points: dict[str, int], field: str
+) -> None:
+    """Fewer than 4 Gauss-Legendre nodes per panel: 422 plan_invalid naming the axis (with 3
+    the probe found bounds below the true error that no allowance floor repaired)."""
+    r = client.post("/v1/plans", json={"problem": problem, "points": points})
+    body = _problem_error(r, 422, "plan_invalid")
+    assert body["errors"][0]["field"] == field
+
+
+def test_gauss_plan_with_four_or_five_nodes_warns(client: TestClient) -> None:
+    problem = {"equation": "u_t = u_xx", "space": {"x": [0.0, 1.0]}, "time": [0.0, 1.0]}
+    r = client.post("/v1/plans", json={"problem": problem, "points": {"t": 5, "x": 4}})
+    assert r.status_code == 201, r.text
+    (warning,) = [w for w in r.json()["warnings"] if "Gauss-Legendre nodes per panel" in w]
+    assert "t (5)" in warning and "x (4)" in warning
+    r = client.post("/v1/plans", json={"problem": problem, "points": {"t": 6, "x": 6}})
+    assert not r.json()["warnings"]

@@ -40,7 +40,7 @@ def _by_definition(comp, f: np.ndarray, n_t: int) -> np.ndarray:  # type: ignore
     "request_",
     [
         {"points": {"t": 5, "x": 7, "y": 6}, "panels": {"x": 2}},
-        {"rule": "sobol", "n": 3 * 64, "replicates": 4, "points": {"t": 3}, "seed": 3},
+        {"rule": "sobol", "n": 4 * 64, "replicates": 4, "points": {"t": 4}, "seed": 3},
         {"rule": "grid", "points": {"t": 5, "x": 9, "y": 5}},
     ],
     ids=["gauss", "sobol", "grid"],
@@ -70,23 +70,23 @@ def test_time_major_flag_does_not_survive_another_time_index() -> None:
 def test_gauss_allowance_matches_the_materialised_formula() -> None:
     """The heuristic allowance (last Legendre coefficients per axis) computed from the axis
     sums equals the same formula on explicitly materialised per-slice tensors."""
-    plan = _plan(points={"t": 3, "x": 12, "y": 7}, panels={"x": 2})
+    plan = _plan(points={"t": 4, "x": 12, "y": 7}, panels={"x": 2})
     comp = plan.components["interior"]
     f = np.random.default_rng(1).random(comp.size) ** 2
     with quadrature_log(QuadratureLog()) as log:
-        upper = slice_integrals(comp, f, 3)
-    estimate = _by_definition(comp, f, 3)
+        upper = slice_integrals(comp, f, 4)
+    estimate = _by_definition(comp, f, 4)
     # reference: the formula of _statements.legendre_tail on w*f reshaped per slice
     shape = comp.space_shape
-    w = comp.slice_weights.reshape(3, *shape)
-    wf = w * f.reshape(3, *shape)
+    w = comp.slice_weights.reshape(4, *shape)
+    wf = w * f.reshape(4, *shape)
     volume = float(np.sum(comp.slice_weights[: int(np.prod(shape))]))
-    expected = np.zeros(3)
+    expected = np.zeros(4)
     for k in range(2):
         other = 2 - k
         g = wf.sum(axis=other) / w.sum(axis=other) * volume
         n = shape[k] // comp.space_panels[k]
-        g = g.reshape(3, comp.space_panels[k], n)
+        g = g.reshape(4, comp.space_panels[k], n)
         x, wq = np.polynomial.legendre.leggauss(n)
         basis = np.polynomial.legendre.legvander(x, n - 1)[:, -2:]
         coef = (g * wq) @ basis * (2 * np.arange(n - 2, n) + 1) / 2
@@ -96,18 +96,18 @@ def test_gauss_allowance_matches_the_materialised_formula() -> None:
     assert log.statements[0].coarse is None
 
 
-@pytest.mark.parametrize(("x_nodes", "y_nodes"), [(8, 5), (4, 7), (5, 3)])
+@pytest.mark.parametrize(("x_nodes", "y_nodes"), [(8, 5), (4, 7), (5, 4)])
 def test_gauss_allowance_on_coarse_panels_is_at_least_the_estimate(
     x_nodes: int, y_nodes: int
 ) -> None:
     """Below MIN_RESOLVED_NODES nodes per panel on an axis the heuristic allowance is at
     least the integral estimate itself, and the statement names the coarse axes."""
-    plan = _plan(points={"t": 3, "x": x_nodes, "y": y_nodes}, panels={"x": 2})
+    plan = _plan(points={"t": 4, "x": x_nodes, "y": y_nodes}, panels={"x": 2})
     comp = plan.components["interior"]
     f = np.random.default_rng(2).random(comp.size) ** 2
     with quadrature_log(QuadratureLog()) as log:
-        upper = slice_integrals(comp, f, 3)
-    estimate = _by_definition(comp, f, 3)
+        upper = slice_integrals(comp, f, 4)
+    estimate = _by_definition(comp, f, 4)
     assert np.all(upper >= 2 * estimate * (1 - 1e-12))
     coarse = log.statements[0].coarse
     assert coarse is not None
