@@ -16,8 +16,9 @@ import math
 import numpy as np
 import pytest
 from scipy.integrate import quad, solve_ivp
+from scipy.interpolate import BarycentricInterpolator
 
-from boundsvc.gronwall import Rate, propagate
+from boundsvc.gronwall import Rate, _PanelInterpolant, propagate
 from boundsvc.quadrature import TimeGrid
 
 
@@ -68,9 +69,10 @@ def test_constant_rate_matches_closed_form_and_ode() -> None:
     assert prop.ended_by is None
 
 
-@pytest.mark.parametrize("big", [1.0, 60.0])
+@pytest.mark.parametrize("big", [1.0, 60.0, 400.0])
 def test_time_varying_rate_matches_ode(big: float) -> None:
-    """a(t) = big * (1 + sin 3t) + 1/(1.25 - t): many pieces per step when ``big`` is large."""
+    """a(t) = big * (1 + sin 3t) + 1/(1.25 - t): many pieces per step when ``big`` is large
+    (at 400 the rate integral is about 560, some 70 pieces of exponent 8)."""
 
     def a(t):  # type: ignore[no-untyped-def]
         return big * (1.0 + np.sin(3.0 * t)) + 1.0 / (1.25 - t)
@@ -88,6 +90,61 @@ def test_time_varying_rate_matches_ode(big: float) -> None:
     # shares add up to one
     total = sum(prop.shares[name][-1] for name in ("initial", "g"))
     assert total == pytest.approx(1.0, rel=1e-12)
+
+
+def test_strongly_damped_rate_matches_ode() -> None:
+    """a(t) = -400 (1 + sin 3t) + 1/(1.25 - t): the bound follows the quasi-steady solution
+    ``Y ~ g/|a|``; never below the ODE solution, and within the end-segment guard's cost."""
+
+    def a(t):  # type: ignore[no-untyped-def]
+        return -400.0 * (1.0 + np.sin(3.0 * t)) + 1.0 / (1.25 - t)
+
+    grid = gauss_grid(0.0, 1.0, 4, 5)
+    prop = propagate(grid, Rate(function=a), 0.25, {"g": 0.5 + grid.nodes**2})
+    assert prop.ended_by is None
+    exact = reference(a, lambda t: 0.5 + t * t, 0.25, prop.times)
+    ratio = np.exp(prop.log_y) / exact
+    assert np.all(ratio >= 1 - 1e-9), np.min(ratio)
+    assert np.all(ratio[prop.node_mask] <= 1.01), np.max(ratio)
+
+
+@pytest.mark.parametrize("seed", range(4))
+def test_panel_polynomial_matches_scipy_barycentric(seed: int) -> None:
+    """Between its first and last node the panel interpolant is the interpolating polynomial:
+    on a panel's Gauss-Legendre nodes it agrees with ``scipy.interpolate.BarycentricInterpolator``
+    (the second barycentric formula, Berrut & Trefethen, SIAM Review 46 (2004), eq. 4.2), is
+    exact at the nodes and on polynomials of lower degree, and is deterministic (scipy's
+    weights are multiplied in a random order, so two of its instances can differ)."""
+    rng = np.random.default_rng(seed)
+    n = int(rng.integers(4, 17))
+    lo = float(rng.uniform(-2.0, 2.0))
+    hi = lo + float(rng.uniform(1e-3, 3.0))
+    x, _ = np.polynomial.legendre.leggauss(n)
+    nodes = 0.5 * (lo + hi) + 0.5 * (hi - lo) * x
+    values = rng.normal(size=(n, 3))
+    inside = np.concatenate([rng.uniform(nodes[0], nodes[-1], 500), nodes, nodes[::3]])
+    ours = _PanelInterpolant(nodes, values)(inside)
+    reference_values = BarycentricInterpolator(nodes, values)(inside)
+    scale = float(np.max(np.abs(reference_values)))
+    np.testing.assert_allclose(ours, reference_values, rtol=0, atol=1e-12 * scale)
+    np.testing.assert_array_equal(ours[500 : 500 + n], values)
+    np.testing.assert_array_equal(_PanelInterpolant(nodes, values)(inside), ours)
+    cubic = 1.0 - 2.0 * nodes + 0.5 * nodes**3
+    exact = (1.0 - 2.0 * inside + 0.5 * inside**3)[:, None]
+    got = _PanelInterpolant(nodes, cubic[:, None])(inside)
+    np.testing.assert_allclose(got, exact, rtol=0, atol=1e-12 * float(np.max(np.abs(exact))))
+
+
+def test_panel_polynomial_with_many_nodes_stays_finite() -> None:
+    """2,000 Gauss-Legendre nodes on one panel: the weights' products would leave float64 if
+    multiplied in node order; the interpolant of a smooth function is still accurate
+    (exp(x) against numpy, common practice for a well-conditioned node set)."""
+    x, _ = np.polynomial.legendre.leggauss(2000)
+    nodes = 3.0 + 0.5 * x
+    interp = _PanelInterpolant(nodes, np.exp(nodes)[:, None])
+    assert np.all(np.isfinite(interp.weights)) and np.all(interp.weights != 0)
+    points = np.linspace(nodes[0], nodes[-1], 301)
+    np.testing.assert_allclose(interp(points)[:, 0], np.exp(points), rtol=1e-11)
 
 
 def test_rate_with_pole_is_vacuous_after_the_pole_and_exact_before() -> None:
