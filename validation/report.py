@@ -657,13 +657,15 @@ def _estimates_section(results: Results) -> list[str]:
         "### Estimates side by side (tightening: before and after)",
         "",
         "Every estimate listed is valid for the same certificate; the service reports the one "
-        "with the smallest space-time bound. New in this version: the **H^-1 residual** "
+        "with the smallest space-time bound. New in this version: the **boundary lifting of "
+        "the semilinear family** (1-D Dirichlet, the reaction's cross term through "
+        "`G = sup |g'|`; docs/theory/semilinear-parabolic.md S1-S8), the **H^-1 residual** "
         "estimate of the advection-diffusion family (1-D, zero-trace error: lifted or exact "
         "Dirichlet data; docs/theory/advection-diffusion.md H1-H6), the **boundary lifting of "
         "the wave family** (1-D Dirichlet; docs/theory/wave.md W1-W7), the **H^-1 interior "
         "term** of the elliptic family (1-D; docs/theory/elliptic.md step 7) and the "
         "**per-panel smoothing width** of the ODE family (docs/theory/ode-system.md step 14). "
-        "*Before* for the first three = the smallest of the other estimates (what the previous "
+        "*Before* for the first four = the smallest of the other estimates (what the previous "
         "version reported).",
         "",
     ]

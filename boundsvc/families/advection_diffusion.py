@@ -347,6 +347,14 @@ LIFTING_REFERENCE = (
     "residual: B. Hillebrecht, B. Unger, arXiv 2210.03426 (2022)"
 )
 LIFTING_COMPONENT = "boundary_t"
+# the initial value of a 1-D lifted estimate (linear and semilinear families)
+LIFTED_INITIAL_INFO = SourceInfo(
+    "initial residual of the lifted error",
+    "(||R_0|| + ||B r(t0)||)^2",
+    "||v(t0)|| <= ||u_model(., t0) - u0|| + sqrt(L/3 (r_a^2 + r_a r_b + r_b^2))(t0)",
+    "heuristic",
+    "quadrature of the initial residual; r(t0) from the time interpolant of the boundary residual",
+)
 # boundary_t is refused (the flux estimate is used) when it differs from the derivative of the
 # time interpolant of the boundary residual by more than this share of their magnitude
 LIFTING_RATE_TOLERANCE = 0.05
@@ -1182,14 +1190,7 @@ class ClassifiedADR(Classified):
         return EnergyInequality(
             base_rate=rate,
             initial=initial,
-            initial_info=SourceInfo(
-                "initial residual of the lifted error",
-                "(||R_0|| + ||B r(t0)||)^2",
-                "||v(t0)|| <= ||u_model(., t0) - u0|| + sqrt(L/3 (r_a^2 + r_a r_b + r_b^2))(t0)",
-                "heuristic",
-                "quadrature of the initial residual; r(t0) from the time interpolant of the "
-                "boundary residual",
-            ),
+            initial_info=LIFTED_INITIAL_INFO,
             residual=forcing_v,
             residual_info=SourceInfo(
                 "interior residual of the lifted error",

@@ -47,11 +47,18 @@ from boundsvc.families._linear import affine_split, field_names, foreign_field_n
 from boundsvc.families.advection_diffusion import (
     FRIEDRICHS_REFERENCE,
     INTERVAL_REFERENCE,
+    LIFTED_INITIAL_INFO,
+    LIFTING_COMPONENT,
+    LIFTING_REFERENCE,
     dirichlet_terms,
     exact_boundary_axes,
+    face_traces,
     friedrichs_warning,
+    lifting_addition,
+    lifting_norm,
     offending_term,
     periodic_terms,
+    rate_mismatch,
 )
 from boundsvc.gronwall import Rate
 from boundsvc.intervals import IntervalError, certified_max, enclose
@@ -322,6 +329,14 @@ class ClassifiedSemilinear(Classified):
             names += [f"periodic_{a}" for a in self.problem.domain.periodic_axes if self.k[a] > 0]
         return names
 
+    def optional_components(self) -> list[str]:
+        """``boundary_t`` (d/dt of the boundary residual) enables the boundary lifting on a
+        1-D Dirichlet interval (docs/theory/semilinear-parabolic.md, steps S1-S8)."""
+        domain = self.problem.domain
+        if domain.dimension == 1 and domain.dirichlet_axes:
+            return [LIFTING_COMPONENT]
+        return []
+
     def requirements(self) -> list[Requirement]:
         reqs = []
         if self.global_l is None:
@@ -560,7 +575,7 @@ class ClassifiedSemilinear(Classified):
                     rigor="assumed",
                 )
             )
-        return EnergyInequality(
+        flux = EnergyInequality(
             base_rate=Rate(constant=rate_value),
             initial=y0,
             initial_info=SourceInfo(
@@ -586,4 +601,167 @@ class ClassifiedSemilinear(Classified):
             failed_hypotheses=data_contradictions(self.problem, plan, res, reg),
             rate_rigor=rate_rigor,
             inputs={"one_sided_lipschitz": lip, "friedrichs_decay": decay},
+        )
+        if LIFTING_COMPONENT in res:
+            flux.label = "boundary flux estimate"
+            lifted = self._lifted_inequality(inputs, y0, residual, (lip, lip_rigor, lip_how))
+            if isinstance(lifted, str):
+                flux.warnings.append(f"boundary lifting not used: {lifted}")
+            else:
+                lifted.failed_hypotheses = list(flux.failed_hypotheses)
+                flux.alternatives.append(lifted)
+        return flux
+
+    # -- the boundary lifting (1-D Dirichlet) --------------------------------------------
+    def _cross_constant(self, reg: Mapping[str, RegularityValue]) -> tuple[float, str] | str:
+        """``G >= sup |g'|`` over an interval holding ``u`` and ``u_model`` (step S4), or why
+        it is not available."""
+        big_m = self._range(reg)
+        if big_m is None:
+            return (
+                "the lifting's cross term needs sup |g'| between u and u_model: send "
+                "sup_abs_u and sup_abs_model_u"
+            )
+        try:
+            value = _cmax(sympy.Abs(self.gp), {self.u: (-big_m, big_m)})
+        except IntervalError as exc:
+            return f"sup |g'| over [-{big_m:.6g}, {big_m:.6g}] cannot be certified ({exc})"
+        return value, (
+            f"interval branch and bound of |g'| over [-{big_m:.6g}, {big_m:.6g}] (M from "
+            "sup_abs_u and sup_abs_model_u)"
+        )
+
+    def _lifted_inequality(
+        self,
+        inputs: CertifyInputs,
+        y0: float,
+        residual: FloatArray,
+        lipschitz: tuple[float, Rigor, str],
+    ) -> EnergyInequality | str:
+        """The estimate for ``v = w - B r`` (zero trace) plus ``||B r||``: steps S1-S8 of
+        docs/theory/semilinear-parabolic.md ("Boundary lifting")."""
+        plan = inputs.plan
+        grid = plan.time
+        assert grid is not None
+        if not self.optional_components():
+            return "the lifting is implemented for one space axis with Dirichlet ends"
+        cross = self._cross_constant(inputs.regularity)
+        if isinstance(cross, str):
+            return cross
+        big_g, g_how = cross
+        traces = face_traces(plan, inputs.residuals)
+        if isinstance(traces, str):
+            return traces
+        r = np.stack([traces.low, traces.high], axis=1)
+        r_t = np.stack([traces.low_t, traces.high_t], axis=1)
+        refused = rate_mismatch(grid, r, r_t)
+        if refused is not None:
+            return refused
+        axis = self.problem.domain.dirichlet_axes[0]
+        length = self.problem.domain.length(axis)
+        lip, lip_rigor, lip_how = lipschitz
+        k, a = self.k[axis], float(self.a_expr[axis])
+        decay = 2 * k * (math.pi / length) ** 2
+        # S2-S3: ||B r|| and ||L0 B r||, L0 = d_t + a d_x - k d_xx (d_xx B r = 0), exact
+        b_norm = lifting_norm(length, traces.low, traces.high)
+        jump = (traces.high - traces.low) / length
+        lb_norm = lifting_norm(length, traces.low_t + a * jump, traces.high_t + a * jump)
+        addition = lifting_addition(grid, length, r)
+        # S5-S6: v(t0) = R_0 - B r(t0); forcing (||R|| + ||L0 B r|| + G ||B r||)^2 / lambda
+        initial = (math.sqrt(max(y0, 0.0)) + float(addition.profile[0])) ** 2
+        forcing_v = np.square(np.sqrt(np.maximum(residual, 0.0)) + lb_norm + big_g * b_norm)
+        rate_value = 2 * lip - decay
+        # G rests on the client's sup_abs_u and sup_abs_model_u (an assumption, as for l)
+        cross_rigor: Rigor = "assumed"
+        rate_rigor: Rigor = lip_rigor
+        constants = self.constants()
+        constants[0] = ConstantInfo(
+            name=constants[0].name,
+            symbol=constants[0].symbol,
+            expression="lambda + 2*l - 2*k*(pi/L)^2",
+            latex=r"\lambda + 2\,\ell - 2k(\pi/L)^2",
+            derivation=(
+                "v = w - B r vanishes at both ends; multiply the equation for v by v and "
+                "integrate: the advection term a (v^2/2)_x and the diffusion's boundary term "
+                "vanish, -k (v_xx, v) = k ||v_x||^2 >= k (pi/L)^2 ||v||^2 (Friedrichs).",
+                "g(u_model) - g(u) = g'(xi) (v + B r): (g'(xi) v, v) <= l ||v||^2 and "
+                "(g'(xi) B r, v) <= G ||B r|| ||v||.",
+                "2 F ||v|| <= lambda ||v||^2 + F^2/lambda with F = ||R|| + ||L0 B r|| + G ||B r||.",
+                f"l = {lip:.6g} ({lip_how}), k = {k:.6g}, L = {length:.6g}: "
+                f"2 l - 2 k (pi/L)^2 = {rate_value:.6g}",
+            ),
+            reference=REFERENCE,
+            value=rate_value,
+            rigor=rate_rigor,
+        )
+        constants[1] = constants[1].with_value(lip, lip_rigor)
+        constants.append(
+            ConstantInfo(
+                name="cross-term constant of the lifting",
+                symbol="G",
+                expression=f"{big_g:.17g}",
+                latex=rf"G = {big_g:.6g} \ge \sup |g'|",
+                derivation=(
+                    f"g'(u) = {to_text(self.gp, self.problem.namespace)}",
+                    "xi lies between u and u_model, so |g'(xi)| <= G for any G bounding |g'| "
+                    "over an interval holding both.",
+                    f"used: {g_how}",
+                ),
+                reference=INTERVAL_REFERENCE,
+                value=big_g,
+                rigor=cross_rigor,
+            )
+        )
+        constants.append(
+            ConstantInfo(
+                name="boundary lifting",
+                symbol="B r",
+                expression="B r(x, t) = r_a(t) (b - x)/L + r_b(t) (x - a)/L",
+                latex=r"B r = r_a(t)\,\frac{b-x}{L} + r_b(t)\,\frac{x-a}{L}",
+                derivation=(
+                    "w = u_model - u has the trace r (boundary residual) at x = a, b; v = w - B r "
+                    "vanishes at both ends for every t.",
+                    "v_t + a v_x - k v_xx - (g(u_model) - g(u)) = R - L0 B r, "
+                    "L0 B r = d_t B r + a (r_b - r_a)/L (d_xx B r = 0); v(t0) = R_0 - B r(t0).",
+                    f"||B r||^2 = L/3 (r_a^2 + r_a r_b + r_b^2) exactly (L = {length:.6g}); "
+                    "||L0 B r|| the same closed form in r_t + a (r_b - r_a)/L, r_t = boundary_t.",
+                    "Gronwall for ||v||^2, then ||w|| <= ||v|| + ||B r|| at each time and by "
+                    "Minkowski in space-time.",
+                    f"largest ||B r|| at the nodes {float(np.max(b_norm)):.6g}, largest "
+                    f"||L0 B r|| {float(np.max(lb_norm)):.6g}",
+                ),
+                reference=LIFTING_REFERENCE,
+                value=float(np.max(b_norm)),
+                rigor="proven",
+            )
+        )
+        return EnergyInequality(
+            base_rate=Rate(constant=rate_value),
+            initial=initial,
+            initial_info=LIFTED_INITIAL_INFO,
+            residual=forcing_v,
+            residual_info=SourceInfo(
+                "interior residual of the lifted error",
+                "(||R|| + ||L0 B r|| + G ||B r||)^2/lambda",
+                "int_t0^t e^{A(s,t)} (||R(s)|| + ||L0 B r(s)|| + G ||B r(s)||)^2 / lambda ds",
+                "heuristic",
+                "quadrature of the interior residual; ||L0 B r|| and ||B r|| in closed form "
+                "from the boundary residual and boundary_t at the time nodes",
+            ),
+            constants=constants,
+            warnings=[
+                "boundary lifting: w = v + B r with B r the linear interpolant of the boundary "
+                "residual between the ends; v has zero trace, so the estimate for v has no "
+                "boundary term and keeps the Friedrichs decay, the reaction's cross term "
+                "g'(xi) B r enters through G ||B r||, and ||w|| <= ||v|| + ||B r||. It rests on "
+                "boundary_t = d/dt (u_model - g) at the boundary points."
+            ],
+            rate_rigor=rate_rigor,
+            inputs={
+                "one_sided_lipschitz": lip,
+                "friedrichs_decay": decay,
+                "cross_constant": big_g,
+            },
+            norm_addition=addition,
+            label="boundary lifting",
         )

@@ -69,9 +69,13 @@ def allen_cahn_front(*, hard: bool = False) -> Problem:
         fields=("u", "u_t", "u_xx"),
         exact=_ac_exact,
         regularity={
-            "sup_abs_u_x": const(g, "u_x = sech^2(.)/(2 W), W = 2 sqrt(2) e: sup = 1/(4 sqrt(2) e)")
+            # the range of u lets the boundary lifting bound its cross term sup |g'|
+            "sup_abs_u": const(1.0, "0 < u < 1 (a front between the states 0 and 1)"),
+            "sup_abs_u_x": const(
+                g, "u_x = sech^2(.)/(2 W), W = 2 sqrt(2) e: sup = 1/(4 sqrt(2) e)"
+            ),
         },
-        model_keys={"sup_abs_model_u_x": "u_x"},
+        model_keys={"sup_abs_model_u": "u", "sup_abs_model_u_x": "u_x"},
         train=TrainConfig(hidden=(24, 24), adam_steps=3000, lbfgs_iters=1200),
         lift=Lift(
             _ac_g,
