@@ -32,7 +32,7 @@ class PlanRequest(BaseModel):
     rule: RuleName = "gauss-legendre"
     points: dict[str, Count] = Field(
         default_factory=dict,
-        description="Nodes per panel and axis ('t', 'x', ...): Gauss-Legendre nodes (4 to 256), "
+        description="Nodes per panel and axis ('t', 'x', ...): Gauss-Legendre nodes (6 to 256), "
         "grid nodes; "
         "for sobol/monte-carlo only 't' (Gauss-Legendre time nodes).",
     )

@@ -32,7 +32,6 @@ from boundsvc.families import (
 from boundsvc.families._base import Rigor
 from boundsvc.fields import residuals_from_fields
 from boundsvc.quadrature import (
-    MIN_RESOLVED_NODES,
     Plan,
     PlanError,
     QuadratureLog,
@@ -292,14 +291,6 @@ def plan_body(plan: Plan, problem_id: str, *, with_arrays: bool = True) -> dict[
             "custom points: no quadrature error term; evaluating residuals at the "
             "training points biases the bound low"
         )
-    coarse = _coarse_axes(plan)
-    if coarse:
-        warnings.append(
-            f"fewer than {MIN_RESOLVED_NODES} Gauss-Legendre nodes per panel along "
-            f"{', '.join(coarse)}: certificates on this plan floor the quadrature allowance "
-            "at the integral estimate and warn that the bound may be below the true error; "
-            f"use {MIN_RESOLVED_NODES} or more"
-        )
     components = []
     for c in plan.components.values():
         item: dict[str, Any] = {"name": c.name, "axes": list(c.axes), "size": c.size}
@@ -318,22 +309,6 @@ def plan_body(plan: Plan, problem_id: str, *, with_arrays: bool = True) -> dict[
         "seed": spec.get("seed"),
         "replicates": spec.get("replicates"),
     }
-
-
-def _coarse_axes(plan: Plan) -> list[str]:
-    """Axes with Gauss-Legendre panels of fewer than ``MIN_RESOLVED_NODES`` nodes, as
-    ``"x (4)"`` (time for every rule with a Gauss time axis, space for gauss-legendre)."""
-    out = []
-    time = plan.time
-    if time is not None and time.mode == "gauss" and time.nodes_per_panel < MIN_RESOLVED_NODES:
-        out.append(f"t ({time.nodes_per_panel})")
-    interior = plan.components.get("interior")
-    if interior is not None and interior.rule == "gauss-legendre":
-        space = [a for a in interior.axes if a != "t"]
-        for axis, n, m in zip(space, interior.space_shape, interior.space_panels, strict=False):
-            if n // m < MIN_RESOLVED_NODES:
-                out.append(f"{axis} ({n // m})")
-    return out
 
 
 def _libraries() -> dict[str, str]:
@@ -407,11 +382,6 @@ def certify(
         derivative_bounds=options.derivative_bounds,
         residual_bounds=options.residual_bounds,
         statistical_components=max(len(statistical), 1),
-        time_nodes_per_panel=(
-            plan.time.nodes_per_panel
-            if plan.time is not None and plan.time.mode == "gauss"
-            else None
-        ),
     )
     inputs = CertifyInputs(plan=plan, residuals=arrays, regularity=values)
     if plan.time is None:
@@ -527,17 +497,6 @@ def _quadrature_section(
         warnings.append(
             "the quadrature allowance of the residual integrals is a heuristic "
             "estimate (use fresh, non-training points)"
-        )
-    for component in sorted({s.component for s in log.statements if s.coarse}):
-        reasons = sorted(
-            {s.coarse for s in log.statements if s.component == component and s.coarse}
-        )
-        warnings.append(
-            f"the plan does not resolve the squared residual of "
-            f"component {component!r} ({'; '.join(reasons)}); its heuristic allowance was "
-            f"raised to the integral estimate itself, which still misses features the nodes "
-            f"cannot see, so the bound may be below the true error: use at least "
-            f"{MIN_RESOLVED_NODES} nodes per panel and more where the residual oscillates"
         )
     term: dict[str, Any] | None = None
     allowance = sum(s.allowance for s in log.statements)

@@ -6,12 +6,12 @@ counts how often the upper limit stays below the integral (reference: a 4,001-no
 rule, far finer than any n here):
 
 - ``tail``: quadrature sum + the Legendre-tail estimate (``legendre_tail``);
-- ``floored``: the same, the allowance at least the sum itself (what the service uses below
-  ``MIN_RESOLVED_NODES`` nodes per panel).
+- ``floored``: the same, the allowance at least the sum itself (a floor the service used on
+  4- and 5-node axes before it refused them).
 
 Run: ``.venv/bin/python tools/coarse_gauss_sweep.py [--draws 3000] [--seed 0]``. The figures
-behind ``MIN_GAUSS_NODES`` and ``MIN_RESOLVED_NODES`` (docs/api.md, "Coarse Gauss-Legendre
-panels") come from the default run.
+behind ``MIN_GAUSS_NODES`` (docs/api.md, "Coarse Gauss-Legendre panels") come from the default
+run.
 """
 
 from __future__ import annotations

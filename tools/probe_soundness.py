@@ -1809,9 +1809,9 @@ def plan_points(
         elif rng.random() < 0.6:
             pts[v] = min(cap, adequate + int(rng.integers(0, 6)))
         else:
-            # the service refuses fewer than 4 Gauss-Legendre nodes per panel (422); the
+            # the service refuses fewer than 6 Gauss-Legendre nodes per panel (422); the
             # clamp keeps the random stream of earlier seeds
-            pts[v] = max(4, int(rng.integers(2 if v == "t" else 3, cap + 1)))
+            pts[v] = max(6, int(rng.integers(2 if v == "t" else 3, cap + 1)))
     if not fine and not draw.steady and rng.random() < 0.2:
         panels["t"] = int(rng.integers(2, 4))
     return pts, panels

@@ -4,7 +4,6 @@ from boundsvc.quadrature._custom import build_custom_plan
 from boundsvc.quadrature._gauss import gauss_legendre
 from boundsvc.quadrature._grid import simpson_rule, trapezoid_rule
 from boundsvc.quadrature._integrals import (
-    MIN_RESOLVED_NODES,
     face_slice_integrals,
     slice_integrals,
     squared_values,
@@ -31,7 +30,6 @@ from boundsvc.quadrature._statements import (
 __all__ = [
     "DEFAULT_CONFIDENCE",
     "DEFAULT_POINTS",
-    "MIN_RESOLVED_NODES",
     "Component",
     "Face",
     "Plan",

@@ -113,7 +113,7 @@ def _limit(
         allowance, delta, method = _monte_carlo(component, f, slices, slice_weights, log)
         rigor = "statistical"
     elif rule == "gauss-legendre":
-        allowance, rigor, method, coarse = _gauss(component, f, slice_weights, estimate, log)
+        allowance, rigor, method = _gauss(component, f, slice_weights, estimate.size, log)
         delta = 0.0
     elif rule in ("grid-trapezoid", "grid-simpson"):
         allowance, method = _grid(component, f, slice_weights, estimate.size)
@@ -121,16 +121,6 @@ def _limit(
     else:
         allowance, rigor, delta = np.zeros_like(estimate), "heuristic", 0.0
         method = "client points and weights: no quadrature error term"
-    if rule != "gauss-legendre":
-        coarse = None
-    n_t = log.time_nodes_per_panel
-    if n_t is not None and n_t < MIN_RESOLVED_NODES and estimate.size > 1:
-        # The slice integrals are interpolated in time from n_t nodes per panel (the
-        # Gronwall forcing): the same floor as for a coarse space axis.
-        reason = f"fewer than {MIN_RESOLVED_NODES} nodes per panel along t ({n_t})"
-        allowance = np.maximum(allowance, estimate)
-        method += f"; at least the integral estimate itself ({reason})"
-        coarse = f"{coarse}; {reason}" if coarse else reason
     log.statements.append(
         QuadratureStatement(
             component=component.name,
@@ -140,7 +130,6 @@ def _limit(
             failure_probability=delta,
             allowance=float(np.max(allowance, initial=0.0)),
             estimate=float(np.max(estimate, initial=0.0)),
-            coarse=coarse,
         )
     )
     return estimate + allowance
@@ -219,30 +208,21 @@ def _monte_carlo(
     )
 
 
-#: Fewer Gauss-Legendre nodes per panel than this on an axis: the coefficient decay says
-#: little about the rule's error; the allowance is then floored at the estimate (our own
-#: threshold, measured by tools/probe_soundness.py; docs/api.md "Coarse Gauss-Legendre
-#: panels").
-MIN_RESOLVED_NODES = 6
-
-
 def _gauss(
     component: Component,
     f: FloatArray,
     slice_weights: FloatArray,
-    estimate: FloatArray,
+    n_slices: int,
     log: QuadratureLog,
-) -> tuple[FloatArray, str, str, str | None]:
-    """Allowance, rigor, method and (heuristic only) why the plan looks too coarse."""
-    n_slices = estimate.size
+) -> tuple[FloatArray, str, str]:
     shape = component.space_shape
     panels = component.space_panels
     if not shape or int(np.prod(shape)) * n_slices != f.size:
-        return np.zeros(n_slices), "heuristic", "no error estimate for this layout", None
+        return np.zeros(n_slices), "heuristic", "no error estimate for this layout"
     bounds = log.derivative_bounds.get(component.name)
     volume = float(np.sum(slice_weights[: int(np.prod(shape))]))
-    space_axes = [a for a in component.axes if a != "t"]
-    if bounds is not None and all(a in bounds for a in space_axes):
+    if bounds is not None and all(a in bounds for a in component.axes if a != "t"):
+        space_axes = [a for a in component.axes if a != "t"]
         err = 0.0
         for k, axis in enumerate(space_axes):
             n = shape[k] // panels[k]
@@ -253,7 +233,6 @@ def _gauss(
             "assumed",
             "classical Gauss-Legendre error term with the client's bounds on the 2n-th "
             "derivatives of the squared residual (Abramowitz & Stegun 25.4.30)",
-            None,
         )
     marginals, weighted = _axis_sums(slice_weights, f, n_slices, shape)
     total = np.zeros(n_slices)
@@ -262,20 +241,11 @@ def _gauss(
         n = shape[k] // panels[k]
         g = g.reshape(n_slices, panels[k], n)
         total += legendre_tail(g, n, 1.0 / panels[k]).sum(axis=1)
-    method = "heuristic: decay of the last two discrete Legendre coefficients along each axis"
-    few = [
-        f"{axis} ({shape[k] // panels[k]})"
-        for k, axis in enumerate(space_axes)
-        if shape[k] // panels[k] < MIN_RESOLVED_NODES
-    ]
-    if not few:
-        return total, "heuristic", method, None
-    # Floor: the allowance is at least the integral estimate itself (the upper limit is
-    # twice the quadrature sum). It covers a quadrature sum down to half the integral,
-    # not an arbitrarily aliased one; the warning says so.
-    reason = f"fewer than {MIN_RESOLVED_NODES} nodes per panel along " + ", ".join(few)
-    method += f"; at least the integral estimate itself ({reason})"
-    return np.maximum(total, estimate), "heuristic", method, reason
+    return (
+        total,
+        "heuristic",
+        "heuristic: decay of the last two discrete Legendre coefficients along each axis",
+    )
 
 
 def _axis_sums(

@@ -52,9 +52,6 @@ class QuadratureStatement:
     failure_probability: float = 0.0
     allowance: float = 0.0
     estimate: float = 0.0
-    #: Gauss-Legendre heuristic only: why the plan looks too coarse for this integral
-    #: (``None``: it does not).
-    coarse: str | None = None
 
 
 @dataclass
@@ -65,9 +62,6 @@ class QuadratureLog:
     derivative_bounds: Mapping[str, Mapping[str, float]] = field(default_factory=dict)
     residual_bounds: Mapping[str, float] = field(default_factory=dict)
     statistical_components: int = 1
-    #: Gauss-Legendre time nodes per panel of the plan (``None``: no Gauss time axis); the
-    #: forcing is interpolated in time from that many nodes (see ``MIN_RESOLVED_NODES``).
-    time_nodes_per_panel: int | None = None
     statements: list[QuadratureStatement] = field(default_factory=list)
     _calls: dict[str, int] = field(default_factory=dict)
 

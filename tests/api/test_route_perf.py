@@ -79,7 +79,7 @@ def test_problem_is_stored_again_after_the_store_was_emptied(
     assert again.status_code == 200 and again.content == first.content
     assert writes == [pid]
     assert store.get_problem(pid) is not None
-    plan = client.post("/v1/plans", json={"problem_id": pid, "points": {"t": 4, "x": 4}})
+    plan = client.post("/v1/plans", json={"problem_id": pid, "points": {"t": 6, "x": 6}})
     assert plan.status_code == 201, plan.text
 
 

@@ -59,19 +59,19 @@ def test_unreadable_files_are_usage_errors(run: Runner, files: dict[str, Path]) 
 @pytest.mark.parametrize("suffix", [".npz", ".json"])
 def test_plan_writes_a_plan_file(run: Runner, files: dict[str, Path], suffix: str) -> None:
     out = files["dir"] / f"plan{suffix}"
-    r = run("plan", str(files["problem"]), "--points", "t=6,x=5", "-o", str(out))
+    r = run("plan", str(files["problem"]), "--points", "t=6,x=6", "-o", str(out))
     assert r.code == 0, r.err
-    assert "interior 30, initial 5, boundary 12 points" in r.out
+    assert "interior 36, initial 6, boundary 12 points" in r.out
     plan = Plan.load(out)
-    assert plan.sizes == {"interior": 30, "initial": 5, "boundary": 12}
+    assert plan.sizes == {"interior": 36, "initial": 6, "boundary": 12}
     assert plan.plan_id in r.out
 
 
 def test_plan_json_summary(run: Runner, files: dict[str, Path]) -> None:
-    r = run("plan", str(files["problem"]), "--points", "t=4,x=4", "--panels", "t=2", "--json")
+    r = run("plan", str(files["problem"]), "--points", "t=6,x=6", "--panels", "t=2", "--json")
     assert r.code == 0, r.err
     body = r.json()
-    assert body["components"]["interior"] == {"size": 32, "axes": ["t", "x"]}
+    assert body["components"]["interior"] == {"size": 72, "axes": ["t", "x"]}
     assert body["plan_id"].startswith("pln_")
 
 
@@ -82,7 +82,7 @@ def test_plan_bad_points_are_usage_errors(run: Runner, files: dict[str, Path], p
 
 
 def test_plan_output_suffix_is_checked(run: Runner, files: dict[str, Path]) -> None:
-    r = run("plan", str(files["problem"]), "--points", "t=4,x=4", "-o", "plan.txt")
+    r = run("plan", str(files["problem"]), "--points", "t=6,x=6", "-o", "plan.txt")
     assert r.code == 2 and ".npz or .json" in r.err
 
 

@@ -111,7 +111,7 @@ def test_base64_and_json_residuals_give_the_same_certificate(client: BoundsvcCli
 
 
 def test_service_errors_come_back_typed(client: BoundsvcClient) -> None:
-    plan = client.plan(HEAT, points={"t": 4, "x": 4})
+    plan = client.plan(HEAT, points={"t": 6, "x": 6})
     res = residuals(plan)
     with pytest.raises(BoundsvcClientError) as info:
         client.certify(HEAT, plan, {"sup_abs_u_x": 3.0}, res)
@@ -166,7 +166,7 @@ def test_api_key_from_the_environment_is_accepted(
     assert (info.value.status, info.value.code) == (401, "unauthorized")
     monkeypatch.setenv("BOUNDSVC_API_KEY", token)
     with client_of(app) as client:
-        plan = client.plan(HEAT, points={"t": 4, "x": 4})
+        plan = client.plan(HEAT, points={"t": 6, "x": 6})
         cert = client.certify(HEAT, plan, REGULARITY, residuals(plan), model={"name": "keyed"})
         assert [s.project for s in client.certificates(model="keyed")] == ["team-a"]
         assert client.certificate(cert.id).id == cert.id
@@ -177,10 +177,10 @@ def test_sobol_plan_and_lifting_component_through_the_client(client: BoundsvcCli
     """Every plan rule is reachable from the client: a scrambled Sobol plan (its interior
     points are a base-2 net per replicate) and a Gauss-Legendre plan with the optional
     ``boundary_t`` component of the boundary lifting."""
-    sobol = client.plan(HEAT, rule="sobol", n=64, replicates=4, seed=7, points={"t": 4})
+    sobol = client.plan(HEAT, rule="sobol", n=6 * 16, replicates=4, seed=7, points={"t": 6})
     assert (
         sobol.plan_id
-        == client.plan(HEAT, rule="sobol", n=64, replicates=4, seed=7, points={"t": 4}).plan_id
+        == client.plan(HEAT, rule="sobol", n=6 * 16, replicates=4, seed=7, points={"t": 6}).plan_id
     )  # reproducible from the request
     interior = sobol.components["interior"]
     assert interior.points.shape[0] % 4 == 0
@@ -193,4 +193,4 @@ def test_sobol_plan_and_lifting_component_through_the_client(client: BoundsvcCli
     lifted = client.plan(HEAT, points={"t": 6, "x": 6}, optional_components=["boundary_t"])
     assert "boundary_t" in lifted.components
     with pytest.raises(TypeError, match="unexpected option"):
-        client.plan(HEAT, points={"t": 4, "x": 4}, replicate=3)
+        client.plan(HEAT, points={"t": 6, "x": 6}, replicate=3)

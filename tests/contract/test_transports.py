@@ -90,7 +90,7 @@ def test_every_transport_gives_the_same_certificate(client: InProcessClient) -> 
 
 
 def test_octet_stream_length_mismatch_names_the_component(client: InProcessClient) -> None:
-    plan = _plan(client, points={"t": 4, "x": 4})
+    plan = _plan(client, points={"t": 6, "x": 6})
     head = {"problem": HEAT, "plan_id": plan["plan_id"], "regularity": REG}
     header = base64.urlsafe_b64encode(json.dumps(head).encode()).decode()
     r = client.post(
@@ -103,7 +103,7 @@ def test_octet_stream_length_mismatch_names_the_component(client: InProcessClien
 
 
 def test_npz_with_pickled_object_arrays_is_refused(client: InProcessClient) -> None:
-    plan = _plan(client, points={"t": 4, "x": 4})
+    plan = _plan(client, points={"t": 6, "x": 6})
     head = {"problem": HEAT, "plan_id": plan["plan_id"], "regularity": REG}
     buf = io.BytesIO()
     np.savez(
@@ -227,7 +227,7 @@ def test_monte_carlo_grid_and_custom_plans(client: InProcessClient) -> None:
 
 
 def test_plan_formats_agree(client: InProcessClient) -> None:
-    rows = _plan(client, points={"t": 4, "x": 6})
+    rows = _plan(client, points={"t": 6, "x": 6})
     pid = rows["plan_id"]
     b64 = client.get(f"/v1/plans/{pid}", params={"format": "base64"}).json()
     npz = client.get(f"/v1/plans/{pid}", params={"format": "npz"})
@@ -241,4 +241,4 @@ def test_plan_formats_agree(client: InProcessClient) -> None:
         )
         np.testing.assert_array_equal(pts, np.asarray(comp["points"]))
         np.testing.assert_array_equal(archive[f"{comp['name']}.weights"], comp["weights"])
-    assert rows["axis_nodes"]["x"] and len(rows["time_nodes"]) == 4
+    assert rows["axis_nodes"]["x"] and len(rows["time_nodes"]) == 6

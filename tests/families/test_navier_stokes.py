@@ -579,7 +579,7 @@ def test_missing_pressure_bound_is_named() -> None:
         {
             "problem_id": pid,
             "rule": "gauss-legendre",
-            "points": {"t": 4, "x": 4, "y": 4},
+            "points": {"t": 6, "x": 6, "y": 6},
             "panels": {},
         },
     )

@@ -75,9 +75,9 @@ def test_sobol_plan_has_the_net_balance_property() -> None:
     """Scrambled Sobol' points of one replicate and slice form a (0, m, 2)-net in base 2:
     every elementary box of volume 2^-m holds exactly one point (Niederreiter 1992, ch. 4;
     Owen 1997 scrambling preserves it)."""
-    plan = _plan(HEAT2D, rule="sobol", n=4 * 64, replicates=4, points={"t": 4})
+    plan = _plan(HEAT2D, rule="sobol", n=6 * 64, replicates=4, points={"t": 6})
     comp = plan.components["interior"]
-    assert comp.replicates == 4 and comp.size == 4 * 4 * 64
+    assert comp.replicates == 4 and comp.size == 4 * 6 * 64
     assert math.isclose(comp.weights.sum(), 2.0 * 1.0, rel_tol=1e-12)  # |D| x T
     sel = (comp.replicate_index == 2) & (comp.time_index == 1)
     pts = comp.points[sel][:, 1:] / np.array([1.0, 2.0])
@@ -90,9 +90,9 @@ def test_sobol_plan_has_the_net_balance_property() -> None:
 
 
 def test_plans_are_reproducible_from_their_request() -> None:
-    a = _plan(HEAT2D, rule="sobol", n=256, replicates=4, points={"t": 4})
-    b = _plan(HEAT2D, rule="sobol", n=256, replicates=4, points={"t": 4})
-    c = _plan(HEAT2D, rule="sobol", n=256, replicates=4, points={"t": 4}, seed=7)
+    a = _plan(HEAT2D, rule="sobol", n=384, replicates=4, points={"t": 6})
+    b = _plan(HEAT2D, rule="sobol", n=384, replicates=4, points={"t": 6})
+    c = _plan(HEAT2D, rule="sobol", n=384, replicates=4, points={"t": 6}, seed=7)
     assert a.plan_id == b.plan_id and np.array_equal(
         a.components["interior"].points, b.components["interior"].points
     )
@@ -103,7 +103,7 @@ def test_sobol_needs_a_power_of_two_per_slice() -> None:
     from boundsvc.errors import PlanInvalid
 
     with pytest.raises(PlanInvalid, match="power of two"):
-        _plan(HEAT2D, rule="sobol", n=4 * 48, replicates=4, points={"t": 4})
+        _plan(HEAT2D, rule="sobol", n=6 * 48, replicates=4, points={"t": 6})
 
 
 @pytest.mark.parametrize("rule", ["sobol", "monte-carlo"])
@@ -115,7 +115,7 @@ def test_statistical_upper_limits_cover_at_the_stated_rate(rule: str) -> None:
     z, w = roots_legendre(60)
     xs, ys = 0.5 * (z + 1), z + 1
     exact = float(np.einsum("i,j,ij->", 0.5 * w, w, f(xs[:, None], ys[None, :])))
-    trials, misses, slices = 300, 0, 4
+    trials, misses, slices = 300, 0, 6
     confidence = 0.8
     for seed in range(trials):
         plan = _plan(
@@ -136,14 +136,14 @@ def test_statistical_upper_limits_cover_at_the_stated_rate(rule: str) -> None:
 def test_gauss_heuristic_estimate_flags_an_unresolved_integrand() -> None:
     plan = _plan(
         {"equation": "u_t = u_xx", "space": {"x": [0.0, 1.0]}, "time": [0.0, 1.0]},
-        points={"t": 4, "x": 8},
+        points={"t": 6, "x": 8},
     )
     comp = plan.components["interior"]
     x = comp.points[:, 1]
     for freq, expect_large in ((1.0, False), (40.0, True)):
         log = QuadratureLog()
         with quadrature_log(log):
-            slice_integrals(comp, np.sin(freq * x) ** 2, 4)
+            slice_integrals(comp, np.sin(freq * x) ** 2, 6)
         st = log.statements[-1]
         assert st.rigor == "heuristic"
         assert (st.allowance > 1e-3) == expect_large
