@@ -787,7 +787,20 @@ def _ns_findings(flows: Sequence[Outcome]) -> str:
         "(kappa from the exact gradient sups of the registry) amplifies every term by "
         "Gronwall's factor; the true error grows far less: the estimate drops the dissipation "
         "`-2 nu ||grad w||^2` and bounds `-(w.grad) u . w` by the largest compressive strain "
-        "over the whole box, wherever the error actually sits."
+        "over the whole box, wherever the error actually sits. "
+        "**Why the target of 100 is missed for Navier-Stokes in this version:** the quadrature "
+        "allowance (docs/api.md, the Legendre-tail estimate) is now taken on every line of "
+        "nodes instead of on the mean over the other axes (a randomized probe found a bound "
+        "below the true error with the mean, docs/reliability.md); its share of the squared "
+        "final-time bound: "
+        + "; ".join(
+            f"`{o.problem.key}` {100 * _share(o, 'quadrature allowance'):.0f} %" for o in flows
+        )
+        + ". It is large for `int |div u_model|`, whose integrand has kinks where the "
+        "divergence changes sign. Measured once when the change was made (not re-run by this "
+        "report): with the mean-over-lines allowance the family median was 98.6; with the "
+        "per-line allowance and 32 instead of 24 nodes per space axis it was 110 (finer plans "
+        "do not help a kinked integrand much)."
     )
 
 

@@ -227,6 +227,10 @@ CASES: tuple[ClosedFormCase, ...] = (
             "sup_abs_model_p": 1.0,
         },
         points={"t": 6, "x": 8, "y": 8, "z": 8},
+        # the per-line Legendre-tail allowance sees cos(x + y) vary along every x and y line of
+        # 8 nodes (the mean over the other axis is flat): at t0 the bound is about 1.5 x the
+        # initial error, not within 1 % (the quadrature sum itself is)
+        sharp_initial=False,
     ),
     FlowCase(
         key="stokes-oscillating-plate-channel",
