@@ -85,7 +85,7 @@ def _is_union_tag(part: Any) -> bool:
 
 
 def _field_path(loc: tuple[Any, ...] | list[Any]) -> str:
-    parts = [str(p) for p in loc if p not in ("body",) and not _is_union_tag(p)]
+    parts = [str(p) for p in loc if p not in ("body", "query", "path") and not _is_union_tag(p)]
     return ".".join(parts) if parts else "body"
 
 

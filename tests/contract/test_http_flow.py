@@ -387,6 +387,19 @@ def test_list_newest_first_and_filter_by_model(client: TestClient) -> None:
     assert {item["id"] for item in only_a} == set(ids[:2])
     v1 = client.get("/v1/certificates", params={"model": "net-a", "version": "1"}).json()
     assert [item["id"] for item in v1["items"]] == [ids[1]]
+    later = client.get("/v1/certificates", params={"created_after": "2999-01-01T00:00:00Z"})
+    assert later.status_code == 200 and later.json()["items"] == []
+
+
+@pytest.mark.parametrize("value", ["-76613", "1700000000", "1.5e9", "2026-01-01T00:00:00"])
+def test_listing_dates_are_iso_with_a_timezone(client: TestClient, value: str) -> None:
+    """created_before / created_after take ISO 8601 with a timezone; a number (which pydantic
+    would read as a Unix time; a schema-fuzzing finding) or a naive time is a 4xx naming the
+    field."""
+    r = client.get("/v1/certificates", params={"created_before": value})
+    assert r.status_code in (400, 422), r.text
+    assert r.headers["content-type"].startswith("application/problem+json")
+    assert r.json()["errors"][0]["field"] == "created_before"
 
 
 class TestBooleansAreNotNumbers:

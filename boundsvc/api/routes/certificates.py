@@ -7,13 +7,14 @@ import binascii
 import datetime as dt
 import email.message
 import json
-from typing import Any
+import re
+from typing import Annotated, Any
 
 import numpy as np
 import orjson
 from fastapi import APIRouter, Depends, HTTPException, Query, Request
 from fastapi.exceptions import RequestValidationError
-from pydantic import ValidationError
+from pydantic import BeforeValidator, ValidationError
 from starlette.concurrency import run_in_threadpool
 from starlette.responses import Response
 
@@ -352,6 +353,20 @@ def get_certificate(
     return Response(stored.document, media_type=JSON)
 
 
+_NUMBER = re.compile(r"\s*[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?\s*")
+
+
+def _iso_only(value: Any) -> Any:
+    """pydantic reads a number as a Unix time; the listing filters take ISO 8601 only (a
+    schema-fuzzing finding: ``created_before=-76613`` was accepted)."""
+    if isinstance(value, str) and _NUMBER.fullmatch(value):
+        raise ValueError("an ISO 8601 date-time with a timezone (e.g. 2026-01-31T12:00:00Z)")
+    return value
+
+
+IsoDateTime = Annotated[dt.datetime, BeforeValidator(_iso_only)]
+
+
 @router.get("/certificates", response_model=CertificatePage)
 def list_certificates(
     model: str | None = Query(default=None, description="model name"),
@@ -360,8 +375,8 @@ def list_certificates(
     model_version: str | None = Query(default=None, description="alias of version"),
     family: str | None = Query(default=None),
     status: str | None = Query(default=None),
-    created_after: dt.datetime | None = Query(default=None),
-    created_before: dt.datetime | None = Query(default=None),
+    created_after: IsoDateTime | None = Query(default=None),
+    created_before: IsoDateTime | None = Query(default=None),
     limit: int = Query(default=50, ge=1, le=500),
     cursor: str | None = Query(default=None),
     store: Store = Depends(get_store),
