@@ -14,6 +14,24 @@ from boundsvc.families import problem_sha256
 from tests.families.manufactured import Operator, residuals_1d, true_error
 
 
+def gauss_plan(
+    problem: dict[str, Any], points: dict[str, int], optional: list[str] | None = None
+) -> tuple[Any, str, Any]:
+    """(classified problem, problem id, Gauss-Legendre plan) built in-process as the routes
+    build them; ``optional``: the plan's optional components (e.g. ``["boundary_t"]``)."""
+    spec = ProblemSpec.model_validate(problem)
+    classified = derive(spec)
+    pid = "prb_" + problem_sha256(spec)[:32]
+    request: dict[str, Any] = {
+        "problem_id": pid,
+        "rule": "gauss-legendre",
+        "points": points,
+        "panels": {},
+        "optional_components": optional or [],
+    }
+    return classified, pid, build_plan(classified, request)
+
+
 def run_case(
     problem: dict[str, Any],
     regularity: dict[str, Any],

@@ -26,7 +26,7 @@ from boundsvc.errors import PlanInvalid
 from boundsvc.families import problem_sha256
 from boundsvc.families.advection_diffusion import lifting_norm
 from tests.families.manufactured import _fn, residuals_1d, t, true_error, x
-from tests.families.support import assert_bound_holds
+from tests.families.support import assert_bound_holds, gauss_plan
 
 K = 0.4
 # a perturbation that moves both boundary values in time (and the interior)
@@ -60,19 +60,7 @@ def _certify(
     eps: float, *, send_rate: bool = True, rate_scale: float = 1.0
 ) -> tuple[dict[str, Any], Any]:
     """Certificate (lifted if ``send_rate``) and true error; cached across the tests."""
-    spec = ProblemSpec.model_validate(HEAT)
-    classified = derive(spec)
-    pid = "prb_" + problem_sha256(spec)[:32]
-    plan = build_plan(
-        classified,
-        {
-            "problem_id": pid,
-            "rule": "gauss-legendre",
-            "points": {"t": 16, "x": 16},
-            "panels": {},
-            "optional_components": ["boundary_t"],
-        },
-    )
+    classified, pid, plan = gauss_plan(HEAT, {"t": 16, "x": 16}, ["boundary_t"])
     um = U + eps * PHI
     g = 1 - sp.Rational(4, 5) * x
     res = residuals_1d(plan, um, heat_operator, U.subs(t, 0), g)

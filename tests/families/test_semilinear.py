@@ -33,6 +33,16 @@ from tests.families.support import assert_bound_holds
 PHI = sp.sin(3 * t + 1) * (x**2 + sp.Rational(1, 2)) * sp.cos(2 * x)  # moves boundary values
 EPS = [1e-1, 1e-2, 1e-3]
 SQ2 = sp.sqrt(2)
+# Fisher-KPP on [-1, 1] x [0, 1] with the data of the Ablowitz-Zeppetella wave (also used by
+# tests/families/test_semilinear_lifting.py)
+FISHER_PROBLEM = {
+    "equation": "u_t = D*u_xx + r*u*(1 - u)",
+    "space": {"x": [-1.0, 1.0]},
+    "time": [0.0, 1.0],
+    "parameters": {"D": 1.0, "r": 1.0},
+    "initial_value": "1/(1 + exp(x/sqrt(6)))^2",
+    "boundary_value": "1/(1 + exp(x/sqrt(6) - 5*t/6))^2",
+}
 
 
 def run(
@@ -180,14 +190,7 @@ def test_fisher_kpp_ablowitz_zeppetella(eps: float) -> None:
     bad = 1 / (1 + c * sp.exp(5 * x / sp.sqrt(6) - sp.Rational(5, 6) * t)) ** 2
     assert sp.simplify(sp.diff(bad, t) - sp.diff(bad, x, 2) - bad * (1 - bad)) != 0
     op = reaction_operator(1.0, lambda v: v * (1 - v))
-    problem = {
-        "equation": "u_t = D*u_xx + r*u*(1 - u)",
-        "space": {"x": [-1.0, 1.0]},
-        "time": [0.0, 1.0],
-        "parameters": {"D": 1.0, "r": 1.0},
-        "initial_value": "1/(1 + exp(x/sqrt(6)))^2",
-        "boundary_value": "1/(1 + exp(x/sqrt(6) - 5*t/6))^2",
-    }
+    problem = FISHER_PROBLEM
     # sup |u_x| = 8/(27 sqrt(6)) = 0.12096 (at exp(.) = 1/2); 0 < u < 1; |phi| <= 1.5, |phi_x| <= 5
     regularity = {
         "sup_abs_u_x": 0.121,

@@ -19,10 +19,10 @@ import pytest
 import sympy as sp
 
 from api_schemas import ProblemSpec
-from boundsvc.certify import build_plan, certify, derive
-from boundsvc.families import problem_sha256
+from boundsvc.certify import certify, derive
 from tests.families.manufactured import _fn, residuals_nd, t, true_error_nd, x
-from tests.families.test_semilinear import check
+from tests.families.support import gauss_plan
+from tests.families.test_semilinear import FISHER_PROBLEM, check
 
 PHI = sp.sin(3 * t + 1) * (x**2 + sp.Rational(1, 2)) * sp.cos(2 * x)  # moves boundary values
 SQ2 = sp.sqrt(2)
@@ -30,14 +30,7 @@ SQ2 = sp.sqrt(2)
 # Fisher-KPP u_t = u_xx + u (1 - u): u = 1/(1 + exp(x/sqrt(6) - 5t/6))^2 (Ablowitz &
 # Zeppetella, Bull. Math. Biol. 41 (1979) 835-840), checked symbolically below
 FISHER_U = 1 / (1 + sp.exp(x / sp.sqrt(6) - sp.Rational(5, 6) * t)) ** 2
-FISHER = {
-    "equation": "u_t = D*u_xx + r*u*(1 - u)",
-    "space": {"x": [-1.0, 1.0]},
-    "time": [0.0, 1.0],
-    "parameters": {"D": 1.0, "r": 1.0},
-    "initial_value": "1/(1 + exp(x/sqrt(6)))^2",
-    "boundary_value": "1/(1 + exp(x/sqrt(6) - 5*t/6))^2",
-}
+FISHER = FISHER_PROBLEM
 # Allen-Cahn u_t = e^2 u_xx + u - u^3 (e = 0.2): travelling front (McKean, Adv. Math. 4 (1970)
 # 209-223 [from memory]; checked symbolically below)
 E = sp.Rational(1, 5)
@@ -79,19 +72,8 @@ def _certify(
 ) -> tuple[dict[str, Any], Any]:
     """Certificate (lifting offered if ``send_rate``) and true error; cached across tests."""
     problem, u, k, g = _case(name)
-    spec = ProblemSpec.model_validate(problem)
-    classified = derive(spec)
-    pid = "prb_" + problem_sha256(spec)[:32]
-    plan = build_plan(
-        classified,
-        {
-            "problem_id": pid,
-            "rule": "gauss-legendre",
-            "points": {"t": 24, "x": 24},
-            "panels": {},
-            "optional_components": ["boundary_t"] if send_rate else [],
-        },
-    )
+    optional = ["boundary_t"] if send_rate else []
+    classified, pid, plan = gauss_plan(problem, {"t": 24, "x": 24}, optional)
     um = u + eps * PHI
 
     def operator(v: sp.Expr) -> sp.Expr:
