@@ -204,6 +204,12 @@ class _PanelInterpolant:
         return out
 
 
+def panel_polynomial(nodes: FloatArray, values: FloatArray, s: FloatArray) -> FloatArray:
+    """The polynomial through ``(nodes, values)`` (rows: nodes) at ``s``, evaluated as the
+    propagation evaluates its forcing (without the end-segment guard)."""
+    return _PanelInterpolant(nodes, values).polynomial(np.asarray(s, dtype=np.float64).ravel())
+
+
 def output_times(grid: TimeGrid) -> tuple[FloatArray, NDArray[np.bool_], NDArray[np.int64]]:
     """Panel edges and nodes in increasing order; which are nodes; and each point's panel."""
     if grid.mode == "linear":

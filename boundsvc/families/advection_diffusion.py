@@ -46,7 +46,7 @@ from boundsvc.families._base import (
 from boundsvc.families._common import best_of, data_contradictions, evaluate_on, gradient_keys
 from boundsvc.families._dual import dual_norm_squared
 from boundsvc.families._linear import affine_split, field_names, foreign_field_names
-from boundsvc.gronwall import Rate, output_times
+from boundsvc.gronwall import Rate, output_times, panel_polynomial
 from boundsvc.intervals import IntervalError, certified_max
 from boundsvc.quadrature import (
     Plan,
@@ -413,10 +413,9 @@ def at_output_times(grid: TimeGrid, values: FloatArray) -> FloatArray:
         n = grid.nodes_per_panel
         for m in range(grid.edges.size - 1):
             sel = panel_of == m
-            interp = BarycentricInterpolator(
-                grid.nodes[m * n : (m + 1) * n], values[m * n : (m + 1) * n]
+            out[sel] = panel_polynomial(
+                grid.nodes[m * n : (m + 1) * n], values[m * n : (m + 1) * n], times[sel]
             )
-            out[sel] = interp(times[sel])
     node_rows = np.flatnonzero(is_node)
     out[node_rows] = values  # the nodes themselves, without interpolation round-off
     return out
