@@ -360,6 +360,28 @@ LIFTED_INITIAL_INFO = SourceInfo(
 LIFTING_RATE_TOLERANCE = 0.05
 
 
+def lifting_constant(
+    steps: Sequence[str], b_norm: FloatArray, lb_norm: FloatArray, operator: str
+) -> ConstantInfo:
+    """The ``boundary lifting`` constant of a 1-D lifted estimate: ``B r`` and its derivation
+    (``steps``, family-specific), closed by the largest ``||B r||`` and ``||<operator> B r||``
+    over the time nodes."""
+    return ConstantInfo(
+        name="boundary lifting",
+        symbol="B r",
+        expression="B r(x, t) = r_a(t) (b - x)/L + r_b(t) (x - a)/L",
+        latex=r"B r = r_a(t)\,\frac{b-x}{L} + r_b(t)\,\frac{x-a}{L}",
+        derivation=(
+            *steps,
+            f"largest ||B r|| at the nodes {float(np.max(b_norm)):.6g}, largest "
+            f"||{operator} B r|| {float(np.max(lb_norm)):.6g}",
+        ),
+        reference=LIFTING_REFERENCE,
+        value=float(np.max(b_norm)),
+        rigor="proven",
+    )
+
+
 @dataclass(frozen=True)
 class FaceTraces:
     """The boundary residual ``r`` and its time derivative ``r_t`` at the two ends of a 1-D
@@ -1222,12 +1244,8 @@ class ClassifiedADR(Classified):
         lb_norm: FloatArray,
         fried: Sequence[str],
     ) -> ConstantInfo:
-        return ConstantInfo(
-            name="boundary lifting",
-            symbol="B r",
-            expression="B r(x, t) = r_a(t) (b - x)/L + r_b(t) (x - a)/L",
-            latex=r"B r = r_a(t)\,\frac{b-x}{L} + r_b(t)\,\frac{x-a}{L}",
-            derivation=(
+        return lifting_constant(
+            (
                 "e = u_model - u has the trace r (boundary residual) at x = a, b; v = e - B r "
                 "vanishes at both ends for every t.",
                 "L v = R - L B r, v(t0) = R_0 - B r(t0).",
@@ -1242,12 +1260,10 @@ class ClassifiedADR(Classified):
                 ),
                 "Young with (||R|| + ||L B r||)^2/lambda, Gronwall, then ||e|| <= ||v|| + ||B r|| "
                 "at each time and by Minkowski in space-time.",
-                f"largest ||B r|| at the nodes {float(np.max(b_norm)):.6g}, largest "
-                f"||L B r|| {float(np.max(lb_norm)):.6g}",
             ),
-            reference=LIFTING_REFERENCE,
-            value=float(np.max(b_norm)),
-            rigor="proven",
+            b_norm,
+            lb_norm,
+            "L",
         )
 
     def _rate_constants(

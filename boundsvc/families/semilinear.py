@@ -49,12 +49,12 @@ from boundsvc.families.advection_diffusion import (
     INTERVAL_REFERENCE,
     LIFTED_INITIAL_INFO,
     LIFTING_COMPONENT,
-    LIFTING_REFERENCE,
     dirichlet_terms,
     exact_boundary_axes,
     face_traces,
     friedrichs_warning,
     lifting_addition,
+    lifting_constant,
     lifting_norm,
     offending_term,
     periodic_terms,
@@ -485,8 +485,8 @@ class ClassifiedSemilinear(Classified):
                 ) from exc
         return max(values)
 
-    def _lipschitz(self, reg: Mapping[str, RegularityValue]) -> tuple[float, Rigor, str]:
-        big_m = self._range(reg)
+    def _lipschitz(self, big_m: float | None) -> tuple[float, Rigor, str]:
+        """``l`` from the global bound or over ``[-M, M]`` (``big_m``: ``_range``), the smaller."""
         options: list[tuple[float, Rigor, str]] = []
         if self.global_l is not None:
             options.append((self.global_l[0], "proven", self.global_l[1]))
@@ -524,7 +524,8 @@ class ClassifiedSemilinear(Classified):
         n_t = grid.size
         y0 = total_integral(plan.components["initial"], np.square(res["initial"]))
         residual = slice_integrals(plan.components["interior"], np.square(res["interior"]), n_t)
-        lip, lip_rigor, lip_how = self._lipschitz(reg)
+        big_m = self._range(reg)
+        lip, lip_rigor, lip_how = self._lipschitz(big_m)
         warnings: list[str] = []
         info: dict[str, SourceInfo] = {}
         forcing: dict[str, FloatArray] = {}
@@ -604,7 +605,7 @@ class ClassifiedSemilinear(Classified):
         )
         if LIFTING_COMPONENT in res:
             flux.label = "boundary flux estimate"
-            lifted = self._lifted_inequality(inputs, y0, residual, (lip, lip_rigor, lip_how))
+            lifted = self._lifted_inequality(inputs, y0, residual, (lip, lip_rigor, lip_how), big_m)
             if isinstance(lifted, str):
                 flux.warnings.append(f"boundary lifting not used: {lifted}")
             else:
@@ -613,10 +614,9 @@ class ClassifiedSemilinear(Classified):
         return flux
 
     # -- the boundary lifting (1-D Dirichlet) --------------------------------------------
-    def _cross_constant(self, reg: Mapping[str, RegularityValue]) -> tuple[float, str] | str:
-        """``G >= sup |g'|`` over an interval holding ``u`` and ``u_model`` (step S4), or why
-        it is not available."""
-        big_m = self._range(reg)
+    def _cross_constant(self, big_m: float | None) -> tuple[float, str] | str:
+        """``G >= sup |g'|`` over an interval holding ``u`` and ``u_model`` (step S4; ``big_m``:
+        ``_range``), or why it is not available."""
         if big_m is None:
             return (
                 "the lifting's cross term needs sup |g'| between u and u_model: send "
@@ -637,6 +637,7 @@ class ClassifiedSemilinear(Classified):
         y0: float,
         residual: FloatArray,
         lipschitz: tuple[float, Rigor, str],
+        big_m: float | None,
     ) -> EnergyInequality | str:
         """The estimate for ``v = w - B r`` (zero trace) plus ``||B r||``: steps S1-S8 of
         docs/theory/semilinear-parabolic.md ("Boundary lifting")."""
@@ -645,7 +646,7 @@ class ClassifiedSemilinear(Classified):
         assert grid is not None
         if not self.optional_components():
             return "the lifting is implemented for one space axis with Dirichlet ends"
-        cross = self._cross_constant(inputs.regularity)
+        cross = self._cross_constant(big_m)
         if isinstance(cross, str):
             return cross
         big_g, g_how = cross
@@ -713,12 +714,8 @@ class ClassifiedSemilinear(Classified):
             )
         )
         constants.append(
-            ConstantInfo(
-                name="boundary lifting",
-                symbol="B r",
-                expression="B r(x, t) = r_a(t) (b - x)/L + r_b(t) (x - a)/L",
-                latex=r"B r = r_a(t)\,\frac{b-x}{L} + r_b(t)\,\frac{x-a}{L}",
-                derivation=(
+            lifting_constant(
+                (
                     "w = u_model - u has the trace r (boundary residual) at x = a, b; v = w - B r "
                     "vanishes at both ends for every t.",
                     "v_t + a v_x - k v_xx - (g(u_model) - g(u)) = R - L0 B r, "
@@ -727,12 +724,10 @@ class ClassifiedSemilinear(Classified):
                     "||L0 B r|| the same closed form in r_t + a (r_b - r_a)/L, r_t = boundary_t.",
                     "Gronwall for ||v||^2, then ||w|| <= ||v|| + ||B r|| at each time and by "
                     "Minkowski in space-time.",
-                    f"largest ||B r|| at the nodes {float(np.max(b_norm)):.6g}, largest "
-                    f"||L0 B r|| {float(np.max(lb_norm)):.6g}",
                 ),
-                reference=LIFTING_REFERENCE,
-                value=float(np.max(b_norm)),
-                rigor="proven",
+                b_norm,
+                lb_norm,
+                "L0",
             )
         )
         return EnergyInequality(
